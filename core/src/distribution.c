@@ -1,0 +1,296 @@
+/*
+ * distribution.c — the exact Schur–Weyl distribution P_n(λ|p) = f^λ s_λ(p).
+ *
+ * s_λ is evaluated without a single subtraction, by the branching rule over
+ * Gelfand–Tsetlin patterns (Macdonald, Symmetric Functions, I (5.11)):
+ *     s_ν(x_1..x_m) = Σ_{μ ≺ ν} s_μ(x_1..x_{m−1}) · x_m^{|ν|−|μ|},
+ * run for all partitions at once as in Demmel & Koev (Math. Comp. 75, 2006)
+ * and Chan–Drensky–Edelman–Kan–Koev ("On computing Schur functions and
+ * series thereof"): the sum over horizontal strips is done one row at a time,
+ *     u(ν,k) = u(ν,k+1) + x_m · u(ν − e_k, k)   when ν_k > ν_{k+1},
+ * in place, in the rank order of internal.h.  Two facts keep it small:
+ *  - s_ν(x_1..x_m) with m non-zero rows equals (x_1⋯x_m)^{ν_m} times s of ν
+ *    with ν_m removed from every row, so level m stores only partitions with
+ *    at most m−1 rows (size <= n) and the table of one level is a prefix of
+ *    the next: one array, grown level by level;
+ *  - zero eigenvalues drop out (only the rank r of ρ matters for s).
+ * Values are kept in long double with x = p/p_max <= 1, so nothing
+ * overflows and the relevant entries stay far above the underflow threshold
+ * (checked up front: n·ln(r·p_max) <= SS__RANGE_LIMIT, because f^λ <= r^n).
+ * f^λ enters in logs at the end.  Only sums and products of non-negative
+ * numbers occur, so the relative error of every entry is a small multiple of
+ * n·d·2^-64, whether eigenvalues are equal, zero or nearly equal.
+ *
+ * Owns the ss_distribution allocations and its temporary table.
+ */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* ln of the factor between the largest and the smallest relevant Schur value
+ * that long double (min normal e^-11355) still represents with margin. */
+#define SS__RANGE_LIMIT 10000.0
+
+typedef struct {
+    long a[SS_LEVELS_MAX + 1]; /* difference coordinates, a[1..M] */
+    long b[SS_LEVELS_MAX + 1]; /* b[i] = budget left for rows <= i */
+    unsigned rows;             /* M */
+} ss__odometer;
+
+/* First run: all outer coordinates zero. */
+static void ss__odometer_start(ss__odometer *o, unsigned rows, long atoms) {
+    memset(o, 0, sizeof *o);
+    o->rows = rows;
+    for (unsigned i = 0; i <= rows; i++)
+        o->b[i] = atoms;
+}
+
+/* Advances the outer coordinates a[2..M] in rank order (a[M] most
+ * significant); a[1] is the run and is left 0.  Returns 0 at the end. */
+static int ss__odometer_next(ss__odometer *o) {
+    for (unsigned i = 2; i <= o->rows; i++) {
+        if ((long)i * (o->a[i] + 1) <= o->b[i]) {
+            o->a[i]++;
+            o->b[i - 1] = o->b[i] - (long)i * o->a[i];
+            for (unsigned j = i - 1; j >= 2; j--) {
+                o->a[j] = 0;
+                o->b[j - 1] = o->b[j];
+            }
+            return 1;
+        }
+    }
+    return 0;
+}
+
+/* Adds variable xm to the level whose table covers partitions with at most
+ * M rows (the table already holds s at M variables for <= M−1 rows). */
+static void ss__schur_add_variable(long double *t, const ss__rank_table *rt,
+                                   unsigned M, long double e_prev,
+                                   long double xm, long double *epow) {
+    long atoms = (long)rt->atoms;
+    ss__odometer o;
+    /* 1. partitions with a_M >= 1: s_ν(x_1..x_M) = e^{a_M} s_{ν−a_M}. */
+    for (long j = 0; (long)M * j <= atoms; j++)
+        epow[j] = powl(e_prev, (long double)j);
+    ss__odometer_start(&o, M, atoms);
+    uint64_t base = 0;
+    do {
+        long run = o.b[1];
+        if (M == 1) {
+            for (long a1 = 1; a1 <= run; a1++)
+                t[a1] = epow[a1] * t[0];
+        } else if (o.a[M] >= 1) {
+            long src[SS_LEVELS_MAX + 1];
+            memcpy(src, o.a, sizeof src);
+            src[M] = 0;
+            uint64_t sbase = ss__rank_of(rt, src, M - 1);
+            long double f = epow[o.a[M]];
+            for (long a1 = 0; a1 <= run; a1++)
+                t[base + (uint64_t)a1] = f * t[sbase + (uint64_t)a1];
+        }
+        base += (uint64_t)run + 1;
+    } while (ss__odometer_next(&o));
+    /* 2. horizontal strips for the new variable, one row at a time. */
+    for (unsigned k = M; k >= 1; k--) {
+        ss__odometer_start(&o, M, atoms);
+        base = 0;
+        do {
+            long run = o.b[1];
+            if (k == 1) {
+                long double *r = t + base;
+                for (long a1 = 1; a1 <= run; a1++)
+                    r[a1] += xm * r[a1 - 1];
+            } else if (o.a[k] >= 1) {
+                long nb[SS_LEVELS_MAX + 1];
+                memcpy(nb, o.a, sizeof nb);
+                nb[k]--;
+                nb[k - 1]++;
+                uint64_t nbase = ss__rank_of(rt, nb, M);
+                /* for k == 2 the neighbour's a_1 is ours plus one; its rank
+                 * already includes that one box through nb[1] = 1. */
+                long double *r = t + base;
+                const long double *s = t + nbase;
+                for (long a1 = 0; a1 <= run; a1++)
+                    r[a1] += xm * s[a1];
+            }
+            base += (uint64_t)run + 1;
+        } while (ss__odometer_next(&o));
+    }
+}
+
+static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
+                          ss_error *err) {
+    const ss_diagram_set *set = d->diagrams;
+    unsigned n = set->atoms, levels = set->levels;
+    unsigned M = rank - 1;
+    ss__rank_table rt = {0, 0, NULL};
+    long double *t = NULL, *epow = NULL, *lfact = NULL, *llog = NULL;
+    ss_status st = SS_ENOMEM;
+    if (ss__rank_table_init(&rt, M, n) != SS_OK)
+        goto done;
+    uint64_t cells = ss__rank_cum(&rt, M, (long)n);
+    t = malloc((size_t)cells * sizeof *t);
+    epow = malloc(((size_t)n + 1) * sizeof *epow);
+    lfact = malloc(((size_t)n + levels + 1) * sizeof *lfact);
+    llog = malloc(((size_t)n + levels + 1) * sizeof *llog);
+    if (t == NULL || epow == NULL || lfact == NULL || llog == NULL)
+        goto done;
+
+    long double x[SS_LEVELS_MAX] = {0};
+    for (unsigned i = 0; i < rank; i++)
+        x[i] = (long double)q[i] / (long double)q[0];
+    t[0] = 1.0L; /* one variable: only the empty partition is stored */
+    long double e = x[0];
+    for (unsigned m = 2; m <= rank; m++) {
+        ss__schur_add_variable(t, &rt, m - 1, e, x[m - 1], epow);
+        e *= x[m - 1];
+    }
+    /* e = x_1⋯x_r now */
+
+    for (size_t k = 0; k <= (size_t)n + levels; k++) {
+        lfact[k] = lgammal((long double)k + 1.0L);
+        llog[k] = k ? logl((long double)k) : 0.0L;
+    }
+    long double log_scale = (long double)n * logl((long double)q[0]);
+    long double log_e = logl(e);
+    long double total = 0.0L, mean = 0.0L;
+    for (size_t i = 0; i < set->count; i++) {
+        const uint32_t *row = set->rows + i * levels;
+        double lp = -INFINITY;
+        if (rank == levels || row[rank] == 0) {
+            long a[SS_LEVELS_MAX + 1] = {0};
+            for (unsigned j = 1; j < rank; j++)
+                a[j] = (long)row[j - 1] - (long)row[j];
+            long double s = t[ss__rank_of(&rt, a, M)];
+            if (s > 0.0L)
+                lp = (double)(ss__log_tableaux(row, levels, lfact, llog) +
+                              log_scale + (long double)row[rank - 1] * log_e +
+                              logl(s));
+        }
+        d->log_probability[i] = lp;
+        d->probability[i] = exp(lp);
+        total += d->probability[i];
+        mean += (long double)d->probability[i] * (long double)set->content[i];
+    }
+    long double var = 0.0L;
+    for (size_t i = 0; i < set->count; i++) {
+        long double dc = (long double)set->content[i] - mean;
+        var += (long double)d->probability[i] * dc * dc;
+    }
+    d->total = (double)total;
+    d->mean_content = (double)mean;
+    d->content_variance = (double)var;
+    st = SS_OK;
+done:
+    if (st != SS_OK)
+        ss_error_set(err, st, "", NULL);
+    ss__rank_table_release(&rt);
+    free(t);
+    free(epow);
+    free(lfact);
+    free(llog);
+    return st;
+}
+
+ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
+                                  const double *p, size_t len,
+                                  const ss_budget *budget,
+                                  ss_distribution **out, ss_error *err) {
+    double q[SS_LEVELS_MAX];
+    if (levels < SS_LEVELS_MIN || levels > SS_LEVELS_MAX)
+        return ss_error_set(err, SS_EINVAL, "levels",
+                            "levels must be an integer from %d to %d, got %u",
+                            SS_LEVELS_MIN, SS_LEVELS_MAX, levels);
+    if (atoms < 1 || atoms > SS_ATOMS_MAX)
+        return ss_error_set(err, SS_EINVAL, "atoms",
+                            "atoms must be an integer from 1 to %d, got %u",
+                            SS_ATOMS_MAX, atoms);
+    ss_status st = ss_spectrum_validate(p, len, levels, q, err);
+    if (st != SS_OK)
+        return st;
+    ss_budget b = budget ? *budget : ss_budget_default();
+    unsigned rank = 0;
+    while (rank < levels && q[rank] > 0.0)
+        rank++;
+    uint64_t cells = ss_diagram_table_cells(atoms, rank);
+    if (cells > b.max_table_cells)
+        return ss_error_set(err, SS_EBUDGET, "max_table_cells",
+                            "%u atoms with %u non-zero eigenvalues need a "
+                            "Schur table of %llu cells; the work budget "
+                            "max_table_cells allows %llu",
+                            atoms, rank, (unsigned long long)cells,
+                            (unsigned long long)b.max_table_cells);
+    double spread = (double)atoms * log((double)rank * q[0]);
+    if (spread > SS__RANGE_LIMIT)
+        return ss_error_set(err, SS_ERANGE, "atoms",
+                            "n·ln(r·p_max) = %.4g exceeds %.0f: the "
+                            "probabilities of %u atoms span more than extended "
+                            "precision holds",
+                            spread, SS__RANGE_LIMIT, atoms);
+    ss_distribution *d = calloc(1, sizeof *d);
+    if (d == NULL)
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    st = ss_diagram_set_alloc(atoms, levels, &b, &d->diagrams, err);
+    if (st != SS_OK) {
+        free(d);
+        return st;
+    }
+    size_t count = d->diagrams->count;
+    d->probability = malloc(count * sizeof *d->probability);
+    d->log_probability = malloc(count * sizeof *d->log_probability);
+    if (d->probability == NULL || d->log_probability == NULL) {
+        ss_distribution_free(d);
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    }
+    memcpy(d->spectrum, q, levels * sizeof *q);
+    st = ss__fill(d, q, rank, err);
+    if (st != SS_OK) {
+        ss_distribution_free(d);
+        return st;
+    }
+    *out = d;
+    return SS_OK;
+}
+
+void ss_distribution_free(ss_distribution *dist) {
+    if (dist == NULL)
+        return;
+    ss_diagram_set_free(dist->diagrams);
+    free(dist->probability);
+    free(dist->log_probability);
+    free(dist);
+}
+
+typedef struct {
+    double prob;
+    size_t index;
+} ss__ranked;
+
+static int ss__cmp_ranked(const void *pa, const void *pb) {
+    const ss__ranked *a = pa, *b = pb;
+    if (a->prob != b->prob)
+        return a->prob < b->prob ? 1 : -1;
+    return (a->index > b->index) - (a->index < b->index);
+}
+
+size_t *ss_distribution_order_by_probability(const ss_distribution *dist) {
+    size_t n = dist->diagrams->count;
+    ss__ranked *tmp = malloc(n * sizeof *tmp);
+    size_t *order = malloc(n * sizeof *order);
+    if (tmp == NULL || order == NULL) {
+        free(tmp);
+        free(order);
+        return NULL;
+    }
+    for (size_t i = 0; i < n; i++) {
+        tmp[i].prob = dist->probability[i];
+        tmp[i].index = i;
+    }
+    qsort(tmp, n, sizeof *tmp, ss__cmp_ranked);
+    for (size_t i = 0; i < n; i++)
+        order[i] = tmp[i].index;
+    free(tmp);
+    return order;
+}
