@@ -264,6 +264,155 @@ ss_status ss_sampler_shot(ss_sampler *s, gsl_rng *rng, unsigned atoms,
                           const ss_calibration *cal, uint32_t *rows_out,
                           double *energy_out, ss_error *err);
 
+/* ------------------------------------------------------------------------ */
+/* Inversion: measured energies to spectra (module analysis and friends).    */
+
+#define SS_RUNS_MAX 1000          /* runs in one request */
+#define SS_SHOTS_MAX 1000000      /* shots in one run (and in a request) */
+#define SS_BOOTSTRAP_MAX 10000    /* bootstrap replicates */
+#define SS_CANDIDATES_MAX 64      /* candidates listed per run */
+
+typedef enum {
+    SS_METHOD_AUTO,
+    SS_METHOD_MOMENTS,
+    SS_METHOD_LIKELIHOOD,
+    SS_METHOD_DIAGRAMS
+} ss_method;
+
+/* "auto", "moments", "likelihood", "diagrams". */
+const char *ss_method_name(ss_method m);
+/* SS_OK and *out set when name is one of the four names; SS_EINVAL else. */
+ss_status ss_method_parse(const char *name, ss_method *out);
+
+/* One run: shots of `atoms` atoms.  Either a summary (shots, mean_energy,
+ * energy_variance with the K−1 denominator; energies NULL) or per-shot
+ * readings (energies, energy_count; shots/mean/variance are then derived
+ * and the given values ignored). */
+typedef struct {
+    unsigned atoms;
+    size_t shots;
+    double mean_energy;
+    double energy_variance;
+    const double *energies;
+    size_t energy_count;
+} ss_run;
+
+typedef struct {
+    unsigned levels;
+    ss_calibration calibration;
+    const ss_run *runs;
+    size_t run_count;
+    ss_method method;
+    double confidence;   /* in (0,1); default 0.95 */
+    unsigned bootstrap;  /* parametric bootstrap replicates; 0 = none */
+    uint64_t seed;       /* for the bootstrap; default 1 */
+    double window;       /* candidate window in standard deviations (3) */
+    ss_budget budget;
+} ss_analysis_request;
+
+ss_analysis_request ss_analysis_request_default(void);
+
+/* Flags: stable codes for what the data cannot decide. */
+#define SS_FLAG_MAP(X)                                                         \
+    X(SS_FLAG_DEGENERATE_ENERGY, "degenerate-energy")                          \
+    X(SS_FLAG_UNDERDETERMINED, "underdetermined")                              \
+    X(SS_FLAG_OUTSIDE_PHYSICAL, "outside-physical-region")                     \
+    X(SS_FLAG_NOISE_DOMINATED, "noise-dominated")                              \
+    X(SS_FLAG_FEW_SHOTS, "few-shots")                                          \
+    X(SS_FLAG_ILL_CONDITIONED, "ill-conditioned")
+
+typedef enum {
+#define SS_X_FLAG(e, name) e,
+    SS_FLAG_MAP(SS_X_FLAG)
+#undef SS_X_FLAG
+        SS_FLAG_COUNT
+} ss_flag_code;
+
+const char *ss_flag_name(ss_flag_code code);
+
+#define SS_FLAG_NUMBERS_MAX 8
+typedef struct {
+    ss_flag_code code;
+    int run;                 /* index of the run concerned, -1 for all */
+    char message[480];
+    unsigned number_count;   /* the numbers that justify the flag */
+    struct {
+        char name[32];
+        double value;
+    } numbers[SS_FLAG_NUMBERS_MAX];
+} ss_flag;
+
+typedef struct {
+    uint32_t rows[SS_LEVELS_MAX];
+    int64_t content;
+    double energy;
+    double z;                 /* (energy − reading) / window sd */
+    double probability;       /* P_n(λ | estimate); NaN when no estimate */
+    double spectrum_estimate[SS_LEVELS_MAX]; /* λ/n */
+    unsigned degenerate_group; /* 0: alone; k >= 1: shares its content with
+                                  the other candidates of group k */
+} ss_candidate;
+
+typedef struct {
+    unsigned atoms;
+    size_t shots;
+    double mean_energy;
+    double energy_variance;
+    double window_sd;          /* sd used for z */
+    size_t window_count;       /* diagrams inside the window (the list holds
+                                  at most SS_CANDIDATES_MAX of them) */
+    ss_candidate *candidates;  /* by |z|, then probability */
+    size_t candidate_count;
+    unsigned degenerate_group_count;
+} ss_run_result;
+
+typedef struct {
+    unsigned levels;
+    ss_method method;          /* the method actually used (never auto) */
+    double confidence;
+    int has_spectrum;          /* 0 for method diagrams */
+    int spectrum_is_max_entropy; /* point estimate is the max-entropy
+                                    spectrum with the measured P2, P3 */
+    double values[SS_LEVELS_MAX]; /* descending */
+    double stderr_[SS_LEVELS_MAX];
+    double lower[SS_LEVELS_MAX];
+    double upper[SS_LEVELS_MAX];
+    double covariance[SS_LEVELS_MAX * SS_LEVELS_MAX]; /* levels x levels */
+    double p2, p2_stderr, p3, p3_stderr, p2_p3_covariance;
+    int p3_determined;         /* 0 when no run has atoms >= 3 */
+    int has_feasible_ranges;
+    double feasible_lower[SS_LEVELS_MAX];
+    double feasible_upper[SS_LEVELS_MAX];
+    int has_naive;
+    double naive[SS_LEVELS_MAX];
+    ss_flag *flags;
+    size_t flag_count;
+    ss_run_result *runs;
+    size_t run_count;
+    struct {
+        double chi2;
+        int dof;
+        double p_value;        /* NaN when dof <= 0 */
+        double distance_se;    /* Mahalanobis distance to the physical
+                                  region in standard errors (0 inside) */
+        double log_likelihood; /* likelihood method only, else NaN */
+        unsigned iterations;
+        int fisher_rank;       /* likelihood: rank of the Fisher matrix */
+        double fisher_condition;
+        double cramer_rao_stderr[SS_LEVELS_MAX]; /* likelihood: CRB sd */
+        unsigned bootstrap_replicates;
+        double bootstrap_stderr[SS_LEVELS_MAX];
+        double bootstrap_p2_stderr;
+    } diagnostics;
+} ss_analysis;
+
+/* Validates the request (every field error names its path, e.g.
+ * "runs[2].energy_variance"), checks the budget, runs the method and fills a
+ * new ss_analysis.  Free with ss_analysis_free. */
+ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
+                          ss_error *err);
+void ss_analysis_free(ss_analysis *a);
+
 #ifdef __cplusplus
 }
 #endif

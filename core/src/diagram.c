@@ -114,7 +114,7 @@ double ss_diagram_log_dimension(const uint32_t *rows, unsigned levels,
      * hook-content product, Stanley EC2 Cor. 7.21.4). */
     for (unsigned i = dim; i < levels; i++)
         if (rows[i] != 0)
-            return -INFINITY;
+            return -HUGE_VAL;
     long double acc = 0.0L;
     for (unsigned i = 0; i < dim; i++) {
         long double li = i < levels ? (long double)rows[i] : 0.0L;

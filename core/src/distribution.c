@@ -120,6 +120,18 @@ static void ss__schur_add_variable(long double *t, const ss__rank_table *rt,
     }
 }
 
+static ss_status ss__range_check(unsigned atoms, unsigned rank, double pmax,
+                                 ss_error *err) {
+    double spread = (double)atoms * log((double)rank * pmax);
+    if (spread > SS__RANGE_LIMIT)
+        return ss_error_set(err, SS_ERANGE, "atoms",
+                            "n·ln(r·p_max) = %.4g exceeds %.0f: the "
+                            "probabilities of %u atoms span more than extended "
+                            "precision holds",
+                            spread, SS__RANGE_LIMIT, atoms);
+    return SS_OK;
+}
+
 static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
                           ss_error *err) {
     const ss_diagram_set *set = d->diagrams;
@@ -158,7 +170,7 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     long double total = 0.0L, mean = 0.0L;
     for (size_t i = 0; i < set->count; i++) {
         const uint32_t *row = set->rows + i * levels;
-        double lp = -INFINITY;
+        double lp = -HUGE_VAL;
         if (rank == levels || row[rank] == 0) {
             long a[SS_LEVELS_MAX + 1] = {0};
             for (unsigned j = 1; j < rank; j++)
@@ -222,13 +234,9 @@ ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
                             "max_table_cells allows %llu",
                             atoms, rank, (unsigned long long)cells,
                             (unsigned long long)b.max_table_cells);
-    double spread = (double)atoms * log((double)rank * q[0]);
-    if (spread > SS__RANGE_LIMIT)
-        return ss_error_set(err, SS_ERANGE, "atoms",
-                            "n·ln(r·p_max) = %.4g exceeds %.0f: the "
-                            "probabilities of %u atoms span more than extended "
-                            "precision holds",
-                            spread, SS__RANGE_LIMIT, atoms);
+    st = ss__range_check(atoms, rank, q[0], err);
+    if (st != SS_OK)
+        return st;
     ss_distribution *d = calloc(1, sizeof *d);
     if (d == NULL)
         return ss_error_set(err, SS_ENOMEM, "", NULL);
@@ -252,6 +260,23 @@ ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
     }
     *out = d;
     return SS_OK;
+}
+
+ss_status ss__distribution_update(ss_distribution *d, const double *p,
+                                  ss_error *err) {
+    unsigned levels = d->diagrams->levels;
+    double q[SS_LEVELS_MAX];
+    ss_status st = ss_spectrum_validate(p, levels, levels, q, err);
+    if (st != SS_OK)
+        return st;
+    unsigned rank = 0;
+    while (rank < levels && q[rank] > 0.0)
+        rank++;
+    st = ss__range_check(d->diagrams->atoms, rank, q[0], err);
+    if (st != SS_OK)
+        return st;
+    memcpy(d->spectrum, q, levels * sizeof *q);
+    return ss__fill(d, q, rank, err);
 }
 
 void ss_distribution_free(ss_distribution *dist) {

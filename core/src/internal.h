@@ -65,4 +65,97 @@ long double ss__log_tableaux(const uint32_t *rows, unsigned levels,
                              const long double *lfact,
                              const long double *llog);
 
+/* Recomputes the probabilities of an existing distribution at a new
+ * spectrum p (levels entries, validated).  The diagram set is kept; the
+ * budget was checked when the distribution was made (the table only shrinks
+ * when eigenvalues vanish). */
+ss_status ss__distribution_update(ss_distribution *d, const double *p,
+                                  ss_error *err);
+
+/* moment_map.c — see its header paragraph. */
+int ss__spectrum_from_moments(unsigned d, double p2, double p3, double *p);
+int ss__spectrum_jacobian(unsigned d, const double *p, double *G);
+size_t ss__moment_solutions(unsigned d, double p2, double p3, double *lo,
+                            double *hi, double *maxent);
+void ss__simplex_from_z(unsigned d, const double *z, double *p);
+void ss__z_from_simplex(unsigned d, const double *p, double *z);
+double ss__nearest_physical(unsigned d, const double theta[2],
+                            const double W[4], int use_p3, double *p_star);
+/* Maximum-entropy spectrum with Σp² = p2 only; returns solutions found. */
+size_t ss__maxent_given_p2(unsigned d, double p2, double *maxent);
+/* A physical spectrum for θ = (P2, P3): the roots for d <= 3, the maximum-
+ * entropy spectrum for d >= 4 (or when P3 is unknown), the nearest physical
+ * point (Euclidean metric) when θ is outside the region. */
+void ss__point_spectrum(unsigned d, const double *theta, int use_p3,
+                        double *p);
+
+/* moments.c — per-run statistics in content units and the GLS fit. */
+typedef struct {
+    unsigned atoms;
+    size_t shots;
+    double mean_energy, energy_variance; /* as measured, energy units */
+    int per_shot;
+    double y1;   /* mean content */
+    double s2;   /* sample variance of the content readings */
+    double y2;   /* s2 − tau2 */
+    double tau2; /* detection-noise variance in content units */
+    double m3, m4; /* sample central moments (per-shot runs) */
+    double cov[3]; /* Var y1, Cov(y1,y2), Var y2 used in the last fit */
+} ss__run_stats;
+
+typedef struct {
+    int npar;         /* 1: P2 only (d = 2, or no run with n >= 3) */
+    double theta[2];  /* P2, P3 (P3 NaN when undetermined) */
+    double cov[4];    /* 2x2 covariance of theta */
+    double chi2;
+    int dof;
+} ss__fit;
+
+ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
+                          const ss_budget *budget, ss__fit *fit,
+                          ss_error *err);
+ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
+                                const double *p_hat, const ss__fit *fit,
+                                unsigned replicates, uint64_t seed,
+                                const ss_budget *budget, double *sd_spectrum,
+                                double *sd_p2, ss_error *err);
+
+/* likelihood.c — maximum likelihood from per-shot energies. */
+typedef struct {
+    double p[SS_LEVELS_MAX];  /* the maximiser, descending */
+    double neg_log_likelihood;
+    unsigned iterations;
+    int boundary;             /* smallest eigenvalue at the boundary (< 1e-7) */
+    int covariance_ok;
+    double covariance[SS_LEVELS_MAX * SS_LEVELS_MAX]; /* observed info */
+    int crb_ok;
+    double crb_stderr[SS_LEVELS_MAX];
+    int fisher_rank;
+    double fisher_condition;
+} ss__lik_result;
+
+ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
+                             const ss__run_stats *rs, const ss_run *runs,
+                             size_t R, const ss_budget *budget,
+                             const double *p_start, ss__lik_result *out,
+                             ss_error *err);
+
+/* candidates.c — diagrams behind one run's energies; naive λ/n. */
+ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
+                             const ss__run_stats *rs, double window,
+                             const ss_distribution *dist,
+                             const ss_diagram_set *set, ss_run_result *out,
+                             double *naive, ss_error *err);
+
+/* request.c — validation and conversion to content units. */
+ss_status ss__request_validate(const ss_analysis_request *req,
+                               ss_error *err);
+void ss__run_stats_fill(const ss_analysis_request *req, ss__run_stats *rs);
+
+/* flags.c — flag construction (NULL when out of memory). */
+ss_flag *ss__flag_add(ss_analysis *a, ss_flag_code code, int run,
+                      const char *fmt, ...)
+    __attribute__((format(printf, 4, 5)));
+void ss__flag_number(ss_flag *f, const char *name, double value);
+
 #endif

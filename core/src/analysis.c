@@ -1,0 +1,614 @@
+/*
+ * analysis.c — the inversion pipeline: validate → content units → moment
+ * fit (always, except for the diagrams method: it is the estimate of the
+ * moments method, the start of the likelihood and the covariance of summary
+ * runs) → spectrum with covariance (roots and delta method for d <= 3,
+ * maximum entropy with exact feasible ranges when underdetermined, nearest
+ * physical point when outside the region) → optional likelihood →
+ * candidates per run → flags.  Owns the ss_analysis and everything in it.
+ */
+#include "internal.h"
+
+#include <gsl/gsl_cdf.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Common practice: below about 30 shots the normal approximation for a
+ * sample variance is poor. */
+#define SS__FEW_SHOTS 30
+/* Half-width of an eigenvalue interval above which it says little. */
+#define SS__WIDE_INTERVAL 0.1
+#define SS__AUTO_BOOTSTRAP 200
+
+static double ss__sq(double x) { return x * x; }
+
+static void ss__set_intervals(ss_analysis *a, double zc) {
+    if (a->spectrum_is_max_entropy)
+        return; /* set from the confidence region of (P2, P3) */
+    for (unsigned i = 0; i < a->levels; i++) {
+        double se = a->stderr_[i], v = a->values[i];
+        a->lower[i] = isfinite(se) ? fmax(0.0, v - zc * se) : 0.0;
+        a->upper[i] = isfinite(se) ? fmin(1.0, v + zc * se) : 1.0;
+    }
+}
+
+static void ss__stderr_from_cov(ss_analysis *a) {
+    unsigned d = a->levels;
+    for (unsigned i = 0; i < d; i++)
+        a->stderr_[i] = sqrt(fmax(a->covariance[i * d + i], 0.0));
+}
+
+/* Feasible ranges and maximum-entropy point for θ (P3 unknown: union over
+ * its admissible interval P2² <= P3 <= P2^1.5). */
+static size_t ss__underdetermined_point(unsigned d, const double *theta,
+                                        int use_p3, double *lo, double *hi,
+                                        double *p) {
+    if (use_p3)
+        return ss__moment_solutions(d, theta[0], theta[1], lo, hi, p);
+    size_t found = ss__maxent_given_p2(d, theta[0], p);
+    double p3lo = theta[0] * theta[0], p3hi = pow(theta[0], 1.5);
+    int first = 1;
+    for (int g = 0; g <= 64; g++) {
+        double l[SS_LEVELS_MAX], h[SS_LEVELS_MAX], m[SS_LEVELS_MAX];
+        double p3 = p3lo + (p3hi - p3lo) * g / 64.0;
+        if (ss__moment_solutions(d, theta[0], p3, l, h, m) == 0)
+            continue;
+        for (unsigned i = 0; i < d; i++) {
+            lo[i] = first ? l[i] : fmin(lo[i], l[i]);
+            hi[i] = first ? h[i] : fmax(hi[i], h[i]);
+        }
+        first = 0;
+    }
+    if (first)
+        for (unsigned i = 0; i < d; i++)
+            lo[i] = hi[i] = p[i];
+    return found;
+}
+
+/* Underdetermined spectra: the honest interval for each eigenvalue is its
+ * range over every spectrum whose power sums lie in the confidence region of
+ * (P2, P3): the union of the exact feasible ranges at the centre and on
+ * rings at half and full radius of the region (16 directions each). */
+static void ss__region_ranges(ss_analysis *a, const double *theta,
+                              const ss__fit *fit, int use_p3) {
+    unsigned d = a->levels;
+    int npar = use_p3 ? 2 : 1;
+    double radius = sqrt(gsl_cdf_chisq_Pinv(a->confidence, npar));
+    double l11 = sqrt(fit->cov[0]), l21 = 0, l22 = 0;
+    if (use_p3) { /* Cholesky factor of the 2x2 covariance */
+        l21 = fit->cov[1] / l11;
+        l22 = sqrt(fmax(fit->cov[3] - l21 * l21, 0));
+    }
+    memcpy(a->lower, a->feasible_lower, d * sizeof(double));
+    memcpy(a->upper, a->feasible_upper, d * sizeof(double));
+    int dirs = use_p3 ? 16 : 2;
+    for (int ring = 1; ring <= 2; ring++)
+        for (int k = 0; k < dirs; k++) {
+            double ang = 2 * 3.14159265358979323846 * k / dirs;
+            double u = cos(ang) * radius * ring / 2, v = sin(ang) * radius * ring / 2;
+            double t[2] = {theta[0] + l11 * u, theta[1] + l21 * u + l22 * v};
+            double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX], p[SS_LEVELS_MAX];
+            if (t[0] < 1.0 / d || t[0] > 1.0)
+                continue;
+            if (ss__underdetermined_point(d, t, use_p3, lo, hi, p) == 0)
+                continue;
+            for (unsigned i = 0; i < d; i++) {
+                a->lower[i] = fmin(a->lower[i], lo[i]);
+                a->upper[i] = fmax(a->upper[i], hi[i]);
+            }
+        }
+    /* a standard error in the usual sense does not exist here: report the
+     * half-width of that range divided by the normal quantile */
+    double zc = gsl_cdf_ugaussian_Pinv(0.5 + 0.5 * a->confidence);
+    memset(a->covariance, 0, sizeof a->covariance);
+    for (unsigned i = 0; i < d; i++) {
+        a->stderr_[i] = 0.5 * (a->upper[i] - a->lower[i]) / zc;
+        a->covariance[i * d + i] = a->stderr_[i] * a->stderr_[i];
+    }
+}
+
+static int ss__inside(unsigned d, const ss__fit *fit) {
+    double P2 = fit->theta[0], P3 = fit->theta[1], p[SS_LEVELS_MAX];
+    double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX];
+    if (P2 < 1.0 / d - 1e-12 || P2 > 1.0 + 1e-12)
+        return 0;
+    if (d == 2 || fit->npar == 1)
+        return 1;
+    if (d == 3)
+        return ss__spectrum_from_moments(3, P2, P3, p);
+    return ss__moment_solutions(d, P2, P3, lo, hi, p) > 0;
+}
+
+static void ss__flag_outside(ss_analysis *a, const ss__fit *fit,
+                             const double *theta_used, double dist,
+                             const ss__run_stats *rs, size_t R,
+                             const ss_calibration *cal) {
+    unsigned d = a->levels;
+    size_t big = 0;
+    for (size_t r = 1; r < R; r++)
+        if (rs[r].shots * rs[r].atoms > rs[big].shots * rs[big].atoms)
+            big = r;
+    double N = 0.5 * rs[big].atoms * (rs[big].atoms - 1.0);
+    double shift = cal->exchange * N * (fit->theta[0] - theta_used[0]);
+    const char *cause;
+    if (dist <= 2.0)
+        cause = "within two standard errors: shot noise alone puts a few "
+                "percent of honest runs this far out; the estimate uses the "
+                "nearest physical point and its interval stays usable";
+    else if (dist <= 3.0)
+        cause = "between two and three standard errors: borderline; check "
+                "the calibration and collect more shots";
+    else if (fit->theta[0] > 1.0 || fit->theta[0] < 1.0 / d)
+        cause = "more than three standard errors: more than shot noise "
+                "explains; the mean energy fits no state, so the offset, "
+                "pair_shift or exchange of the calibration is the likely "
+                "cause";
+    else
+        cause = "more than three standard errors: more than shot noise "
+                "explains; the variance fits no state with this purity, so "
+                "unsubtracted or over-subtracted detection noise (noise_sd) "
+                "or a wrong exchange is the likely cause";
+    ss_flag *f = ss__flag_add(
+        a, SS_FLAG_OUTSIDE_PHYSICAL, -1,
+        "The measured power sums (P2 = %.6g%s) lie outside the region any "
+        "%u-level spectrum reaches, %.2f standard errors from it: %s. An "
+        "offset error of %.4g %s in run %zu would explain the purity part.",
+        fit->theta[0], fit->npar == 2 ? ", with P3" : "", d, dist, cause,
+        shift, cal->unit, big);
+    ss__flag_number(f, "distance_se", dist);
+    ss__flag_number(f, "p2", fit->theta[0]);
+    ss__flag_number(f, "p2_stderr", sqrt(fit->cov[0]));
+    if (fit->npar == 2) {
+        ss__flag_number(f, "p3", fit->theta[1]);
+        ss__flag_number(f, "p3_stderr", sqrt(fit->cov[3]));
+    }
+    ss__flag_number(f, "p2_physical", theta_used[0]);
+    ss__flag_number(f, "implied_offset_shift", shift);
+}
+
+static ss_status ss__estimate_moments(ss_analysis *a,
+                                      const ss_analysis_request *req,
+                                      const ss__run_stats *rs,
+                                      const ss__fit *fit, double zc,
+                                      ss_error *err) {
+    unsigned d = a->levels;
+    int use_p3 = fit->npar == 2;
+    double theta[2] = {fit->theta[0], use_p3 || d == 2 ? fit->theta[1] : 0};
+    double p[SS_LEVELS_MAX] = {0};
+    a->p2 = fit->theta[0];
+    a->p2_stderr = sqrt(fit->cov[0]);
+    a->p3 = fit->theta[1];
+    a->p3_stderr = sqrt(fit->cov[3]);
+    a->p2_p3_covariance = fit->cov[1];
+    a->p3_determined = use_p3 || d == 2;
+    if (!ss__inside(d, fit)) {
+        double W[4] = {0, 0, 0, 0}, dist;
+        if (use_p3) {
+            double det = fit->cov[0] * fit->cov[3] - fit->cov[1] * fit->cov[2];
+            W[0] = fit->cov[3] / det;
+            W[1] = W[2] = -fit->cov[1] / det;
+            W[3] = fit->cov[0] / det;
+        } else {
+            W[0] = 1.0 / fit->cov[0];
+        }
+        if (!use_p3) { /* one dimension: clamp */
+            double p2 = fmin(1.0, fmax(1.0 / d, theta[0]));
+            dist = fabs(theta[0] - p2) / sqrt(fit->cov[0]);
+            theta[0] = p2;
+            if (d == 2)
+                theta[1] = 0.5 * (3 * p2 - 1);
+            ss__point_spectrum(d, theta, 0, p);
+        } else {
+            dist = ss__nearest_physical(d, theta, W, 1, p);
+            theta[0] = ss_spectrum_power_sum(p, d, 2);
+            theta[1] = ss_spectrum_power_sum(p, d, 3);
+        }
+        a->diagnostics.distance_se = dist;
+        ss__flag_outside(a, fit, theta, dist, rs, req->run_count,
+                         &req->calibration);
+    }
+    a->has_spectrum = 1;
+    if (d == 2 || (d == 3 && use_p3)) {
+        if (a->diagnostics.distance_se == 0)
+            ss__spectrum_from_moments(d, theta[0], theta[1], p);
+        memcpy(a->values, p, d * sizeof *p);
+        double G[6];
+        if (ss__spectrum_jacobian(d, p, G)) {
+            for (unsigned i = 0; i < d; i++)
+                for (unsigned j = 0; j < d; j++) {
+                    double v = G[i * 2] * G[j * 2] * fit->cov[0];
+                    if (use_p3)
+                        v += (G[i * 2] * G[j * 2 + 1] +
+                              G[i * 2 + 1] * G[j * 2]) *
+                                 fit->cov[1] +
+                             G[i * 2 + 1] * G[j * 2 + 1] * fit->cov[3];
+                    a->covariance[i * d + j] = v;
+                }
+            ss__stderr_from_cov(a);
+        } else {
+            for (unsigned i = 0; i < d; i++)
+                a->stderr_[i] = nan("");
+            for (unsigned i = 0; i < d * d; i++)
+                a->covariance[i] = nan("");
+        }
+    } else {
+        double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX];
+        ss__underdetermined_point(d, theta, use_p3, lo, hi, p);
+        memcpy(a->values, p, d * sizeof *p);
+        memcpy(a->feasible_lower, lo, d * sizeof *lo);
+        memcpy(a->feasible_upper, hi, d * sizeof *hi);
+        a->has_feasible_ranges = 1;
+        a->spectrum_is_max_entropy = 1;
+        ss__region_ranges(a, theta, fit, use_p3);
+        int npar = use_p3 ? 2 : 1;
+        ss_flag *f = ss__flag_add(
+            a, SS_FLAG_UNDERDETERMINED, -1,
+            "Means and variances fix %d power sum%s (P2%s) but a %u-level "
+            "spectrum needs %u: the values shown are the maximum-entropy "
+            "spectrum with the measured power sums, and feasible_ranges "
+            "gives, for each eigenvalue, the exact range over all spectra "
+            "with them. Per-shot energies (likelihood) or more levels of "
+            "moments are needed to pin it down.",
+            npar, npar == 1 ? "" : "s", npar == 2 ? ", P3" : "", d, d - 1);
+        ss__flag_number(f, "levels", d);
+        ss__flag_number(f, "power_sums_fixed", npar);
+        ss__flag_number(f, "power_sums_needed", d - 1);
+    }
+    /* nearly equal eigenvalues: the root map's derivative blows up */
+    if (!a->spectrum_is_max_entropy) {
+        double worst_ratio = HUGE_VAL, gap = 0, gap_se = 0;
+        int singular = !isfinite(a->stderr_[0]);
+        for (unsigned i = 0; !singular && i + 1 < d; i++) {
+            double g = a->values[i] - a->values[i + 1];
+            double v = a->covariance[i * d + i] +
+                       a->covariance[(i + 1) * d + i + 1] -
+                       2 * a->covariance[i * d + i + 1];
+            double se = sqrt(fmax(v, 0));
+            if (se > 0 && g / se < worst_ratio) {
+                worst_ratio = g / se;
+                gap = g;
+                gap_se = se;
+            }
+        }
+        if (singular || worst_ratio < 2.0) {
+            ss_flag *f = ss__flag_add(
+                a, SS_FLAG_ILL_CONDITIONED, -1,
+                "Two eigenvalues are nearly equal (gap %.3g, standard error "
+                "%.3g): the map from power sums to eigenvalues is nearly "
+                "singular there, so the delta-method error bars are "
+                "unreliable; the bootstrap standard errors in diagnostics "
+                "are the ones to trust.",
+                gap, gap_se);
+            ss__flag_number(f, "min_gap", gap);
+            ss__flag_number(f, "gap_stderr", gap_se);
+        }
+    }
+    (void)zc;
+    (void)err;
+    return SS_OK;
+}
+
+static ss_status ss__estimate_likelihood(ss_analysis *a,
+                                         const ss_analysis_request *req,
+                                         const ss__run_stats *rs,
+                                         ss_error *err) {
+    unsigned d = a->levels;
+    ss__lik_result res;
+    ss_status st =
+        ss__likelihood_fit(d, &req->calibration, rs, req->runs,
+                           req->run_count, &req->budget, a->values, &res, err);
+    if (st != SS_OK)
+        return st;
+    memcpy(a->values, res.p, d * sizeof *res.p);
+    if (res.covariance_ok) {
+        memcpy(a->covariance, res.covariance, d * d * sizeof(double));
+    } else if (res.crb_ok) {
+        memset(a->covariance, 0, sizeof a->covariance);
+        for (unsigned i = 0; i < d; i++)
+            a->covariance[i * d + i] = ss__sq(res.crb_stderr[i]);
+    }
+    ss__stderr_from_cov(a);
+    a->diagnostics.log_likelihood = -res.neg_log_likelihood;
+    a->diagnostics.iterations = res.iterations;
+    a->diagnostics.fisher_rank = res.fisher_rank;
+    a->diagnostics.fisher_condition = res.fisher_condition;
+    memcpy(a->diagnostics.cramer_rao_stderr, res.crb_stderr,
+           d * sizeof(double));
+    /* power sums of the fitted spectrum, delta method */
+    double g2[SS_LEVELS_MAX], g3[SS_LEVELS_MAX];
+    for (unsigned i = 0; i < d; i++) {
+        g2[i] = 2 * a->values[i];
+        g3[i] = 3 * a->values[i] * a->values[i];
+    }
+    double v22 = 0, v33 = 0, v23 = 0;
+    for (unsigned i = 0; i < d; i++)
+        for (unsigned j = 0; j < d; j++) {
+            double c = a->covariance[i * d + j];
+            v22 += g2[i] * g2[j] * c;
+            v33 += g3[i] * g3[j] * c;
+            v23 += g2[i] * g3[j] * c;
+        }
+    a->p2 = ss_spectrum_power_sum(a->values, d, 2);
+    a->p3 = ss_spectrum_power_sum(a->values, d, 3);
+    a->p2_stderr = sqrt(fmax(v22, 0));
+    a->p3_stderr = sqrt(fmax(v33, 0));
+    a->p2_p3_covariance = v23;
+    a->p3_determined = 1;
+    /* the likelihood identifies what the moments could not: drop those */
+    size_t keep = 0;
+    int full = res.fisher_rank >= (int)d - 1;
+    for (size_t i = 0; i < a->flag_count; i++) {
+        ss_flag_code c = a->flags[i].code;
+        if ((c == SS_FLAG_UNDERDETERMINED && full) ||
+            c == SS_FLAG_ILL_CONDITIONED)
+            continue;
+        a->flags[keep++] = a->flags[i];
+    }
+    a->flag_count = keep;
+    double min_gap = HUGE_VAL;
+    for (unsigned i = 0; i + 1 < d; i++)
+        min_gap = fmin(min_gap, a->values[i] - a->values[i + 1]);
+    if (full || min_gap < 1e-4) {
+        a->has_feasible_ranges = 0;
+        a->spectrum_is_max_entropy = 0;
+    }
+    if (!full && min_gap < 1e-4) {
+        ss_flag *f = ss__flag_add(
+            a, SS_FLAG_ILL_CONDITIONED, -1,
+            "The likelihood peaks where two eigenvalues are equal (gap "
+            "%.2g). There the Fisher information is singular (rank %d of "
+            "%u) and no Cramér–Rao bound exists; the error bars come from "
+            "the observed curvature and are only indicative.",
+            min_gap, res.fisher_rank, d - 1);
+        ss__flag_number(f, "min_gap", min_gap);
+        ss__flag_number(f, "fisher_rank", res.fisher_rank);
+        for (unsigned i = 0; i < d; i++)
+            a->diagnostics.cramer_rao_stderr[i] = nan("");
+    } else if (!full) {
+        ss_flag *f = ss__flag_add(
+            a, SS_FLAG_UNDERDETERMINED, -1,
+            "The Fisher information of the per-shot data has rank %d, below "
+            "the %u the spectrum needs: some directions of the spectrum are "
+            "not identified by these energies.",
+            res.fisher_rank, d - 1);
+        ss__flag_number(f, "fisher_rank", res.fisher_rank);
+        ss__flag_number(f, "parameters", d - 1);
+        for (unsigned i = 0; i < d; i++)
+            a->diagnostics.cramer_rao_stderr[i] = nan("");
+    }
+    if (full && res.fisher_condition > 1e8) {
+        ss_flag *f = ss__flag_add(
+            a, SS_FLAG_ILL_CONDITIONED, -1,
+            "The Fisher information is nearly singular (condition number "
+            "%.3g): some combination of eigenvalues is barely constrained, "
+            "typically nearly equal eigenvalues.",
+            res.fisher_condition);
+        ss__flag_number(f, "fisher_condition", res.fisher_condition);
+    }
+    if (res.boundary) {
+        a->stderr_[d - 1] = fmax(a->stderr_[d - 1], 0.0);
+    }
+    return SS_OK;
+}
+
+static void ss__flags_runs(ss_analysis *a, const ss_analysis_request *req,
+                           const ss__run_stats *rs, double zc) {
+    double total = 0;
+    for (size_t r = 0; r < req->run_count; r++) {
+        total += (double)rs[r].shots;
+        double se = sqrt(rs[r].cov[2]);
+        if (rs[r].tau2 > 0 && (rs[r].y2 <= 0 || rs[r].y2 < 2 * se)) {
+            double J2 = ss__sq(req->calibration.exchange);
+            ss_flag *f = ss__flag_add(
+                a, SS_FLAG_NOISE_DOMINATED, (int)r,
+                "Run %zu: after subtracting the detection-noise variance "
+                "(%.4g) the energy variance leaves %.4g ± %.4g, %s; its "
+                "variance says little about P3. Lower the detection noise or "
+                "take more shots.",
+                r, rs[r].tau2 * J2, rs[r].y2 * J2, se * J2,
+                rs[r].y2 <= 0 ? "which is not positive"
+                              : "less than two standard errors above zero");
+            ss__flag_number(f, "energy_variance", rs[r].energy_variance);
+            ss__flag_number(f, "noise_variance", rs[r].tau2 * J2);
+            ss__flag_number(f, "excess_variance", rs[r].y2 * J2);
+            ss__flag_number(f, "excess_stderr", se * J2);
+        }
+        if (rs[r].shots < SS__FEW_SHOTS) {
+            ss_flag *f = ss__flag_add(
+                a, SS_FLAG_FEW_SHOTS, (int)r,
+                "Run %zu has %zu shots; below about %d the normal "
+                "approximation behind its error bars is poor (common "
+                "practice). Take at least %d.",
+                r, rs[r].shots, SS__FEW_SHOTS, SS__FEW_SHOTS);
+            ss__flag_number(f, "shots", (double)rs[r].shots);
+            ss__flag_number(f, "shots_needed", SS__FEW_SHOTS);
+        }
+    }
+    double worst = 0;
+    for (unsigned i = 0; i < a->levels; i++)
+        if (isfinite(a->stderr_[i]))
+            worst = fmax(worst, zc * a->stderr_[i]);
+    if (a->has_spectrum && worst > SS__WIDE_INTERVAL) {
+        double need = ceil(total * ss__sq(worst / SS__WIDE_INTERVAL));
+        ss_flag *f = ss__flag_add(
+            a, SS_FLAG_FEW_SHOTS, -1,
+            "The widest eigenvalue interval has half-width %.3g, more than "
+            "%.2g: with %.0f shots in all the spectrum is barely "
+            "constrained. About %.0f shots would bring it to %.2g.",
+            worst, SS__WIDE_INTERVAL, total, need, SS__WIDE_INTERVAL);
+        ss__flag_number(f, "half_width", worst);
+        ss__flag_number(f, "shots", total);
+        ss__flag_number(f, "shots_needed", need);
+    }
+}
+
+/* One flag per run whose candidates include diagrams sharing a content. */
+static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
+                                size_t r, const ss_calibration *cal) {
+    size_t members = 0, first = SIZE_MAX;
+    double prob = 0;
+    for (size_t k = 0; k < out->candidate_count; k++)
+        if (out->candidates[k].degenerate_group) {
+            members++;
+            prob += out->candidates[k].probability;
+            if (first == SIZE_MAX ||
+                out->candidates[k].probability >
+                    out->candidates[first].probability)
+                first = k;
+        }
+    const ss_candidate *c = &out->candidates[first];
+    ss_flag *f = ss__flag_add(
+        a, SS_FLAG_DEGENERATE_ENERGY, (int)r,
+        "Run %zu (%u atoms): %u energies among the candidates belong to more "
+        "than one Young diagram (%zu diagrams in all; e.g. content %lld at "
+        "%.6g %s), and the diagrams of each such energy imply different "
+        "spectra: no energy resolution can tell them apart (listed in "
+        "runs[%zu].degenerate_groups).",
+        r, out->atoms, out->degenerate_group_count, members,
+        (long long)c->content, c->energy, cal->unit, r);
+    ss__flag_number(f, "atoms", out->atoms);
+    ss__flag_number(f, "groups", out->degenerate_group_count);
+    ss__flag_number(f, "diagrams", (double)members);
+    ss__flag_number(f, "example_content", (double)c->content);
+    if (a->has_spectrum)
+        ss__flag_number(f, "probability_in_groups", prob);
+}
+
+static ss_status ss__candidates_all(ss_analysis *a,
+                                    const ss_analysis_request *req,
+                                    const ss__run_stats *rs, ss_error *err) {
+    unsigned d = a->levels;
+    double naive_sum[SS_LEVELS_MAX] = {0}, wsum = 0;
+    ss_status st = SS_OK;
+    for (size_t r = 0; r < req->run_count && st == SS_OK; r++) {
+        ss_distribution *dist = NULL;
+        ss_diagram_set *set = NULL;
+        if (a->has_spectrum)
+            st = ss_distribution_compute(rs[r].atoms, d, a->values, d,
+                                         &req->budget, &dist, err);
+        else
+            st = ss_diagram_set_alloc(rs[r].atoms, d, &req->budget, &set,
+                                      err);
+        if (st == SS_OK) {
+            ss_run_result *out = &a->runs[r];
+            double naive[SS_LEVELS_MAX];
+            out->atoms = rs[r].atoms;
+            out->shots = rs[r].shots;
+            out->mean_energy = rs[r].mean_energy;
+            out->energy_variance = rs[r].energy_variance;
+            st = ss__run_candidates(d, &req->calibration, &rs[r], req->window,
+                                    dist, dist ? dist->diagrams : set, out,
+                                    naive, err);
+            for (unsigned i = 0; i < d; i++)
+                naive_sum[i] += (double)rs[r].shots * naive[i];
+            wsum += (double)rs[r].shots;
+            if (st == SS_OK && out->degenerate_group_count > 0)
+                ss__flag_degenerate(a, out, r, &req->calibration);
+        }
+        ss_distribution_free(dist);
+        ss_diagram_set_free(set);
+    }
+    if (st == SS_OK) {
+        a->has_naive = 1;
+        for (unsigned i = 0; i < d; i++)
+            a->naive[i] = naive_sum[i] / wsum;
+    }
+    return st;
+}
+
+ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
+                          ss_error *err) {
+    ss_status st = ss__request_validate(req, err);
+    if (st != SS_OK)
+        return st;
+    unsigned d = req->levels;
+    size_t R = req->run_count;
+    ss_analysis *a = calloc(1, sizeof *a);
+    ss__run_stats *rs = calloc(R, sizeof *rs);
+    if (a != NULL)
+        a->runs = calloc(R, sizeof *a->runs);
+    if (a == NULL || rs == NULL || a->runs == NULL) {
+        free(rs);
+        ss_analysis_free(a);
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    }
+    a->run_count = R;
+    a->levels = d;
+    a->confidence = req->confidence;
+    a->diagnostics.log_likelihood = nan("");
+    a->diagnostics.p_value = nan("");
+    ss__run_stats_fill(req, rs);
+    int any_shot = 0;
+    for (size_t r = 0; r < R; r++)
+        any_shot |= rs[r].per_shot;
+    ss_method method = req->method;
+    if (method == SS_METHOD_AUTO)
+        method = any_shot ? SS_METHOD_LIKELIHOOD : SS_METHOD_MOMENTS;
+    if (method == SS_METHOD_LIKELIHOOD && !any_shot) {
+        st = ss_error_set(err, SS_EINVAL, "method",
+                          "the likelihood method needs per-shot energies in "
+                          "at least one run");
+        goto done;
+    }
+    a->method = method;
+    double zc = gsl_cdf_ugaussian_Pinv(0.5 + 0.5 * req->confidence);
+    if (method != SS_METHOD_DIAGRAMS) {
+        ss__fit fit;
+        st = ss__moments_fit(d, rs, R, &req->budget, &fit, err);
+        if (st != SS_OK)
+            goto done;
+        a->diagnostics.chi2 = fit.chi2;
+        a->diagnostics.dof = fit.dof;
+        if (fit.dof > 0)
+            a->diagnostics.p_value = gsl_cdf_chisq_Q(fit.chi2, fit.dof);
+        st = ss__estimate_moments(a, req, rs, &fit, zc, err);
+        unsigned boots = req->bootstrap;
+        if (boots == 0 && !isfinite(a->stderr_[0]))
+            boots = SS__AUTO_BOOTSTRAP;
+        if (st == SS_OK && boots > 0 && method == SS_METHOD_MOMENTS) {
+            double sd[SS_LEVELS_MAX], sdp2 = 0;
+            st = ss__moments_bootstrap(d, rs, R, a->values, &fit, boots,
+                                       req->seed, &req->budget, sd, &sdp2,
+                                       err);
+            if (st == SS_OK) {
+                a->diagnostics.bootstrap_replicates = boots;
+                memcpy(a->diagnostics.bootstrap_stderr, sd, d * sizeof *sd);
+                a->diagnostics.bootstrap_p2_stderr = sdp2;
+                if (!isfinite(a->stderr_[0]))
+                    memcpy(a->stderr_, sd, d * sizeof *sd);
+            }
+        }
+        if (st == SS_OK && method == SS_METHOD_LIKELIHOOD) {
+            st = ss__estimate_likelihood(a, req, rs, err);
+            if (st == SS_EBUDGET && req->method == SS_METHOD_AUTO) {
+                ss_error_clear(err); /* too big for the likelihood: stay */
+                a->method = SS_METHOD_MOMENTS;
+                st = SS_OK;
+            }
+        }
+        if (st != SS_OK)
+            goto done;
+        ss__set_intervals(a, zc);
+        ss__flags_runs(a, req, rs, zc);
+    }
+    st = ss__candidates_all(a, req, rs, err);
+done:
+    free(rs);
+    if (st != SS_OK) {
+        ss_analysis_free(a);
+        return st;
+    }
+    *out = a;
+    return SS_OK;
+}
+
+void ss_analysis_free(ss_analysis *a) {
+    if (a == NULL)
+        return;
+    for (size_t r = 0; a->runs && r < a->run_count; r++)
+        free(a->runs[r].candidates);
+    free(a->runs);
+    free(a->flags);
+    free(a);
+}

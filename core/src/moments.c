@@ -1,0 +1,339 @@
+/*
+ * moments.c — the moment inversion: per-run mean and variance of the content
+ * sum to (P2, P3) by generalised least squares, and its parametric
+ * bootstrap.
+ *
+ * Per run (atoms n, K shots, N = C(n,2), noise τ = σ/|J| in content units)
+ * the observations are y1 = mean content and y2 = sample variance − τ², with
+ *     E[y1] = N·P2,   E[y2] = N − N(2n−3)·P2² + 2(n−2)N·P3
+ * (domain.md §2; the variance identity rewritten with C(n,2) − C(n−2,2) =
+ * 2n − 3).  Their covariance comes from the central moments μ2, μ3, μ4 of the
+ * noisy content (the textbook sampling moments of the mean and the unbiased
+ * variance: Var ȳ = μ2/K, Cov(ȳ, s²) = μ3/K, Var s² = μ4/K −
+ * μ2²(K−3)/(K(K−1))): sample moments for per-shot runs, the exact model at
+ * the current estimate for summary runs.  The runs are combined by
+ * Gauss–Newton on Σ rᵀ Σ⁻¹ r, re-weighting at the new estimate (three
+ * rounds).  For d = 2 the spectrum has one parameter and P3 = (3·P2 − 1)/2.
+ *
+ * Owns nothing across calls; distributions made for the model moments are
+ * freed before returning.
+ */
+#include "internal.h"
+
+#include <gsl/gsl_randist.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static double ss__pairs_n(unsigned n) { return 0.5 * n * (n - 1.0); }
+
+/* Model f(θ) and its Jacobian row for one run. */
+static void ss__model(unsigned d, int npar, unsigned n, const double *theta,
+                      double f[2], double J[2][2]) {
+    double N = ss__pairs_n(n), P2 = theta[0];
+    double P3 = npar == 2 ? theta[1] : (d == 2 ? 0.5 * (3.0 * P2 - 1.0) : 0.0);
+    f[0] = N * P2;
+    f[1] = N - N * (2.0 * n - 3.0) * P2 * P2 + 2.0 * (n - 2.0) * N * P3;
+    J[0][0] = N;
+    J[0][1] = 0.0;
+    J[1][0] = -2.0 * N * (2.0 * n - 3.0) * P2;
+    J[1][1] = 2.0 * (n - 2.0) * N;
+    if (npar == 1 && d == 2)
+        J[1][0] += 3.0 * (n - 2.0) * N;
+}
+
+/* Central moments of the exact content law at spectrum p for n atoms. */
+static ss_status ss__model_moments(unsigned n, unsigned d, const double *p,
+                                   const ss_budget *b, double m[3],
+                                   ss_error *err) {
+    ss_distribution *dist = NULL;
+    ss_status st = ss_distribution_compute(n, d, p, d, b, &dist, err);
+    if (st != SS_OK)
+        return st;
+    long double m2 = 0, m3 = 0, m4 = 0;
+    for (size_t i = 0; i < dist->diagrams->count; i++) {
+        long double dc =
+            (long double)dist->diagrams->content[i] - dist->mean_content;
+        long double w = dist->probability[i];
+        m2 += w * dc * dc;
+        m3 += w * dc * dc * dc;
+        m4 += w * dc * dc * dc * dc;
+    }
+    m[0] = (double)m2;
+    m[1] = (double)m3;
+    m[2] = (double)m4;
+    ss_distribution_free(dist);
+    return SS_OK;
+}
+
+/* Covariance of (y1, y2) from moments of the noise-free content (m2, m3, m4)
+ * and the noise variance tau2. */
+static void ss__obs_covariance(const ss__run_stats *r, double m2, double m3,
+                               double m4, double cov[3]) {
+    double K = (double)r->shots, t2 = r->tau2;
+    double M2 = m2 + t2, M3 = m3, M4 = m4 + 6.0 * m2 * t2 + 3.0 * t2 * t2;
+    double floor_var = 1e-24 * fmax(1.0, ss__pairs_n(r->atoms));
+    cov[0] = fmax(M2 / K, floor_var);
+    cov[1] = M3 / K;
+    cov[2] = fmax(M4 / K - M2 * M2 * (K - 3.0) / (K * (K - 1.0)), floor_var);
+}
+
+/* One Gauss–Newton fit with fixed per-run weights.  y[r] are observations;
+ * W[r] inverse covariances.  Returns chi2; theta updated; A = JᵀWJ. */
+static double ss__gn(unsigned d, int npar, const ss__run_stats *rs, size_t R,
+                     const double (*y)[2], const double (*W)[3],
+                     double *theta, double A_out[4]) {
+    double chi2 = 0.0;
+    for (int it = 0; it < 30; it++) {
+        double A[4] = {0}, g[2] = {0};
+        chi2 = 0.0;
+        for (size_t r = 0; r < R; r++) {
+            double f[2], J[2][2];
+            ss__model(d, npar, rs[r].atoms, theta, f, J);
+            double res[2] = {y[r][0] - f[0], y[r][1] - f[1]};
+            double w00 = W[r][0], w01 = W[r][1], w11 = W[r][2];
+            double wr[2] = {w00 * res[0] + w01 * res[1],
+                            w01 * res[0] + w11 * res[1]};
+            chi2 += res[0] * wr[0] + res[1] * wr[1];
+            for (int a = 0; a < npar; a++) {
+                double wj0 = w00 * J[0][a] + w01 * J[1][a];
+                double wj1 = w01 * J[0][a] + w11 * J[1][a];
+                g[a] += J[0][a] * wr[0] + J[1][a] * wr[1];
+                for (int b = 0; b < npar; b++)
+                    A[a * 2 + b] += wj0 * J[0][b] + wj1 * J[1][b];
+            }
+        }
+        double step[2] = {0, 0};
+        if (npar == 1) {
+            step[0] = A[0] > 0 ? g[0] / A[0] : 0.0;
+        } else {
+            double det = A[0] * A[3] - A[1] * A[2];
+            if (fabs(det) > 0) {
+                step[0] = (A[3] * g[0] - A[1] * g[1]) / det;
+                step[1] = (A[0] * g[1] - A[2] * g[0]) / det;
+            }
+        }
+        theta[0] += step[0];
+        if (npar == 2)
+            theta[1] += step[1];
+        memcpy(A_out, A, sizeof A);
+        if (fabs(step[0]) < 1e-15 && fabs(step[1]) < 1e-15)
+            break;
+    }
+    return chi2;
+}
+
+static void ss__invert_cov(const double c[3], double w[3]) {
+    double det = c[0] * c[2] - c[1] * c[1];
+    if (det <= 0.0) { /* drop the correlation if it is numerically singular */
+        w[0] = 1.0 / c[0];
+        w[1] = 0.0;
+        w[2] = 1.0 / c[2];
+        return;
+    }
+    w[0] = c[2] / det;
+    w[1] = -c[1] / det;
+    w[2] = c[0] / det;
+}
+
+ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
+                          const ss_budget *budget, ss__fit *fit,
+                          ss_error *err) {
+    int any3 = 0;
+    for (size_t r = 0; r < R; r++)
+        any3 |= rs[r].atoms >= 3;
+    int npar = (d >= 3 && any3) ? 2 : 1;
+    double (*y)[2] = malloc(R * sizeof *y);
+    double (*W)[3] = malloc(R * sizeof *W);
+    if (y == NULL || W == NULL) {
+        free(y);
+        free(W);
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    }
+    /* starting point: shot-weighted purity, P3 from the pooled variance */
+    double theta[2] = {0, 0}, wsum = 0, p3sum = 0, p3w = 0;
+    for (size_t r = 0; r < R; r++) {
+        double N = ss__pairs_n(rs[r].atoms), K = (double)rs[r].shots;
+        y[r][0] = rs[r].y1;
+        y[r][1] = rs[r].y2;
+        theta[0] += K * rs[r].y1 / N;
+        wsum += K;
+    }
+    theta[0] /= wsum;
+    double p2c = fmin(1.0, fmax(1.0 / d, theta[0]));
+    for (size_t r = 0; r < R; r++) {
+        unsigned n = rs[r].atoms;
+        if (n < 3)
+            continue;
+        double N = ss__pairs_n(n), K = (double)rs[r].shots;
+        p3sum += K * (rs[r].y2 / N - 1.0 + (2.0 * n - 3.0) * p2c * p2c) /
+                 (2.0 * (n - 2.0));
+        p3w += K;
+    }
+    theta[1] = p3w > 0 ? p3sum / p3w : p2c * p2c;
+    if (d == 2)
+        theta[1] = 0.5 * (3.0 * theta[0] - 1.0);
+
+    double A[4] = {0}, chi2 = 0.0;
+    ss_status st = SS_OK;
+    for (int round = 0; round < 3 && st == SS_OK; round++) {
+        /* spectrum at which the summary runs' higher moments are taken */
+        double p[SS_LEVELS_MAX];
+        ss__point_spectrum(d, theta, npar == 2, p);
+        unsigned cached_n = 0;
+        double mm[3] = {0, 0, 0};
+        for (size_t r = 0; r < R && st == SS_OK; r++) {
+            double m2, m3, m4;
+            if (rs[r].per_shot) {
+                m2 = fmax(rs[r].s2 - rs[r].tau2, 0.0);
+                m3 = rs[r].m3;
+                /* sample μ4 of the noisy content, noise part removed */
+                m4 = fmax(rs[r].m4 - 6.0 * m2 * rs[r].tau2 -
+                              3.0 * rs[r].tau2 * rs[r].tau2,
+                          m2 * m2);
+            } else {
+                if (rs[r].atoms != cached_n) {
+                    st = ss__model_moments(rs[r].atoms, d, p, budget, mm, err);
+                    cached_n = rs[r].atoms;
+                }
+                m2 = mm[0];
+                m3 = mm[1];
+                m4 = mm[2];
+            }
+            double cov[3];
+            ss__obs_covariance(&rs[r], m2, m3, m4, cov);
+            memcpy(rs[r].cov, cov, sizeof cov);
+            ss__invert_cov(cov, W[r]);
+        }
+        if (st == SS_OK)
+            chi2 = ss__gn(d, npar, rs, R, (const double(*)[2])y,
+                          (const double(*)[3])W, theta, A);
+    }
+    if (st == SS_OK) {
+        fit->npar = npar;
+        fit->theta[0] = theta[0];
+        fit->theta[1] = npar == 2 ? theta[1]
+                                  : (d == 2 ? 0.5 * (3.0 * theta[0] - 1.0)
+                                            : nan(""));
+        double cov[4] = {0, 0, 0, 0};
+        if (npar == 1) {
+            cov[0] = A[0] > 0 ? 1.0 / A[0] : HUGE_VAL;
+            if (d == 2) { /* P3 = (3 P2 − 1)/2 */
+                cov[1] = cov[2] = 1.5 * cov[0];
+                cov[3] = 2.25 * cov[0];
+            } else {
+                cov[3] = nan("");
+                cov[1] = cov[2] = nan("");
+            }
+        } else {
+            double det = A[0] * A[3] - A[1] * A[2];
+            cov[0] = A[3] / det;
+            cov[1] = cov[2] = -A[1] / det;
+            cov[3] = A[0] / det;
+        }
+        memcpy(fit->cov, cov, sizeof cov);
+        fit->chi2 = chi2;
+        fit->dof = (int)(2 * R) - npar;
+    }
+    free(y);
+    free(W);
+    return st;
+}
+
+/* --- parametric bootstrap -------------------------------------------------- */
+
+ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
+                                const double *p_hat, const ss__fit *fit,
+                                unsigned replicates, uint64_t seed,
+                                const ss_budget *budget, double *sd_spectrum,
+                                double *sd_p2, ss_error *err) {
+    ss_status st = SS_OK;
+    size_t nlev = 0;
+    gsl_ran_discrete_t **tables = calloc(R, sizeof *tables);
+    int64_t **contents = calloc(R, sizeof *contents);
+    double (*y)[2] = malloc(R * sizeof *y);
+    double (*W)[3] = malloc(R * sizeof *W);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    long double sum[SS_LEVELS_MAX] = {0}, sq[SS_LEVELS_MAX] = {0};
+    long double s2sum = 0, s2sq = 0;
+    if (tables == NULL || contents == NULL || y == NULL || W == NULL ||
+        rng == NULL) {
+        st = ss_error_set(err, SS_ENOMEM, "", NULL);
+        goto done;
+    }
+    gsl_rng_set(rng, (unsigned long)seed);
+    /* exact content law at the estimate, one alias table per run */
+    for (size_t r = 0; r < R && st == SS_OK; r++) {
+        ss_distribution *dist = NULL;
+        ss_levels *lv = NULL;
+        st = ss_distribution_compute(rs[r].atoms, d, p_hat, d, budget, &dist,
+                                     err);
+        if (st == SS_OK)
+            st = ss_levels_alloc(dist->diagrams, dist->probability, &lv, err);
+        if (st == SS_OK) {
+            nlev = lv->count;
+            contents[r] = malloc(nlev * sizeof **contents);
+            tables[r] = gsl_ran_discrete_preproc(nlev, lv->probability);
+            if (contents[r] == NULL || tables[r] == NULL)
+                st = ss_error_set(err, SS_ENOMEM, "", NULL);
+            else
+                memcpy(contents[r], lv->content, nlev * sizeof **contents);
+        }
+        ss_levels_free(lv);
+        ss_distribution_free(dist);
+        ss__invert_cov(rs[r].cov, W[r]);
+    }
+    if (st != SS_OK)
+        goto done;
+    for (unsigned b = 0; b < replicates; b++) {
+        for (size_t r = 0; r < R; r++) {
+            double tau = sqrt(rs[r].tau2);
+            long double s = 0, ss = 0;
+            for (size_t k = 0; k < rs[r].shots; k++) {
+                double c = (double)contents[r][gsl_ran_discrete(rng, tables[r])];
+                if (tau > 0)
+                    c += gsl_ran_gaussian_ziggurat(rng, tau);
+                s += c;
+                ss += (long double)c * c;
+            }
+            double K = (double)rs[r].shots;
+            double mean = (double)(s / K);
+            double var = (double)((ss - s * s / K) / (K - 1.0));
+            y[r][0] = mean;
+            y[r][1] = var - rs[r].tau2;
+        }
+        double theta[2] = {fit->theta[0], fit->theta[1]}, A[4];
+        ss__gn(d, fit->npar, rs, R, (const double(*)[2])y,
+               (const double(*)[3])W, theta, A);
+        double p[SS_LEVELS_MAX];
+        ss__point_spectrum(d, theta, fit->npar == 2, p);
+        for (unsigned i = 0; i < d; i++) {
+            sum[i] += p[i];
+            sq[i] += (long double)p[i] * p[i];
+        }
+        s2sum += theta[0];
+        s2sq += (long double)theta[0] * theta[0];
+    }
+    for (unsigned i = 0; i < d; i++) {
+        long double m = sum[i] / replicates;
+        sd_spectrum[i] =
+            (double)sqrtl(fmaxl(sq[i] / replicates - m * m, 0.0L) *
+                          replicates / fmax(replicates - 1.0, 1.0));
+    }
+    {
+        long double m = s2sum / replicates;
+        *sd_p2 = (double)sqrtl(fmaxl(s2sq / replicates - m * m, 0.0L) *
+                               replicates / fmax(replicates - 1.0, 1.0));
+    }
+done:
+    for (size_t r = 0; tables && r < R; r++) {
+        gsl_ran_discrete_free(tables[r]);
+        free(contents[r]);
+    }
+    free(tables);
+    free(contents);
+    free(y);
+    free(W);
+    gsl_rng_free(rng);
+    return st;
+}
