@@ -130,8 +130,8 @@ typedef struct {
     unsigned atoms;
     unsigned levels;
     size_t count;
-    uint32_t *rows;    /* count * levels entries, diagram i at rows + i*levels */
-    int64_t *content;  /* count entries */
+    uint32_t *rows;   /* count * levels entries, diagram i at rows + i*levels */
+    int64_t *content; /* count entries */
 } ss_diagram_set;
 
 /* Enumerates iteratively.  SS_EINVAL for levels outside [2,16] or atoms
@@ -200,13 +200,13 @@ double ss_content_variance(unsigned atoms, double p2, double p3);
  * extended precision (relative error far below 1e-9 for every λ, including
  * repeated, zero and nearly equal eigenvalues). */
 typedef struct {
-    ss_diagram_set *diagrams;  /* owned */
-    double *probability;       /* diagrams->count entries, sum 1 ± 1e-12 */
-    double *log_probability;   /* natural log; -INFINITY where P = 0 */
+    ss_diagram_set *diagrams; /* owned */
+    double *probability;      /* diagrams->count entries, sum 1 ± 1e-12 */
+    double *log_probability;  /* natural log; -INFINITY where P = 0 */
     double spectrum[SS_LEVELS_MAX]; /* the input, sorted, first `levels` */
-    double mean_content;       /* Σ P·c from the table */
-    double content_variance;   /* Σ P·(c − mean)² from the table */
-    double total;              /* Σ P (a check: 1 within 1e-10) */
+    double mean_content;            /* Σ P·c from the table */
+    double content_variance;        /* Σ P·(c − mean)² from the table */
+    double total;                   /* Σ P (a check: 1 within 1e-10) */
 } ss_distribution;
 
 /* Validates p (see ss_spectrum_validate: len must equal levels), checks the
@@ -226,13 +226,13 @@ size_t *ss_distribution_order_by_probability(const ss_distribution *dist);
 /* ------------------------------------------------------------------------ */
 /* Energy levels: diagrams grouped by content (module levels).               */
 typedef struct {
-    size_t count;          /* number of distinct content values */
-    int64_t *content;      /* count entries, increasing */
-    double *probability;   /* count entries (0 when built from a bare set) */
-    size_t *first;         /* count+1 offsets into members */
-    size_t *members;       /* diagram indices, grouped by content; within a
-                              group by decreasing probability (or table
-                              order for a bare set) */
+    size_t count;        /* number of distinct content values */
+    int64_t *content;    /* count entries, increasing */
+    double *probability; /* count entries (0 when built from a bare set) */
+    size_t *first;       /* count+1 offsets into members */
+    size_t *members;     /* diagram indices, grouped by content; within a
+                            group by decreasing probability (or table
+                            order for a bare set) */
 } ss_levels;
 
 /* Groups a diagram set (probabilities NULL) or a distribution's diagrams
@@ -267,10 +267,10 @@ ss_status ss_sampler_shot(ss_sampler *s, gsl_rng *rng, unsigned atoms,
 /* ------------------------------------------------------------------------ */
 /* Inversion: measured energies to spectra (module analysis and friends).    */
 
-#define SS_RUNS_MAX 1000          /* runs in one request */
-#define SS_SHOTS_MAX 1000000      /* shots in one run (and in a request) */
-#define SS_BOOTSTRAP_MAX 10000    /* bootstrap replicates */
-#define SS_CANDIDATES_MAX 64      /* candidates listed per run */
+#define SS_RUNS_MAX 1000       /* runs in one request */
+#define SS_SHOTS_MAX 1000000   /* shots in one run (and in a request) */
+#define SS_BOOTSTRAP_MAX 10000 /* bootstrap replicates */
+#define SS_CANDIDATES_MAX 64   /* candidates listed per run */
 
 typedef enum {
     SS_METHOD_AUTO,
@@ -303,10 +303,10 @@ typedef struct {
     const ss_run *runs;
     size_t run_count;
     ss_method method;
-    double confidence;   /* in (0,1); default 0.95 */
-    unsigned bootstrap;  /* parametric bootstrap replicates; 0 = none */
-    uint64_t seed;       /* for the bootstrap; default 1 */
-    double window;       /* candidate window in standard deviations (3) */
+    double confidence;  /* in (0,1); default 0.95 */
+    unsigned bootstrap; /* parametric bootstrap replicates; 0 = none */
+    uint64_t seed;      /* for the bootstrap; default 1 */
+    double window;      /* candidate window in standard deviations (3) */
     ss_budget budget;
 } ss_analysis_request;
 
@@ -333,9 +333,9 @@ const char *ss_flag_name(ss_flag_code code);
 #define SS_FLAG_NUMBERS_MAX 8
 typedef struct {
     ss_flag_code code;
-    int run;                 /* index of the run concerned, -1 for all */
+    int run; /* index of the run concerned, -1 for all */
     char message[480];
-    unsigned number_count;   /* the numbers that justify the flag */
+    unsigned number_count; /* the numbers that justify the flag */
     struct {
         char name[32];
         double value;
@@ -346,8 +346,8 @@ typedef struct {
     uint32_t rows[SS_LEVELS_MAX];
     int64_t content;
     double energy;
-    double z;                 /* (energy − reading) / window sd */
-    double probability;       /* P_n(λ | estimate); NaN when no estimate */
+    double z;           /* (energy − reading) / window sd */
+    double probability; /* P_n(λ | estimate); NaN when no estimate */
     double spectrum_estimate[SS_LEVELS_MAX]; /* λ/n */
     unsigned degenerate_group; /* 0: alone; k >= 1: shares its content with
                                   the other candidates of group k */
@@ -358,28 +358,28 @@ typedef struct {
     size_t shots;
     double mean_energy;
     double energy_variance;
-    double window_sd;          /* sd used for z */
-    size_t window_count;       /* diagrams inside the window (the list holds
-                                  at most SS_CANDIDATES_MAX of them) */
-    ss_candidate *candidates;  /* by |z|, then probability */
+    double window_sd;         /* sd used for z */
+    size_t window_count;      /* diagrams inside the window (the list holds
+                                 at most SS_CANDIDATES_MAX of them) */
+    ss_candidate *candidates; /* by |z|, then probability */
     size_t candidate_count;
     unsigned degenerate_group_count;
 } ss_run_result;
 
 typedef struct {
     unsigned levels;
-    ss_method method;          /* the method actually used (never auto) */
+    ss_method method; /* the method actually used (never auto) */
     double confidence;
-    int has_spectrum;          /* 0 for method diagrams */
-    int spectrum_is_max_entropy; /* point estimate is the max-entropy
-                                    spectrum with the measured P2, P3 */
+    int has_spectrum;             /* 0 for method diagrams */
+    int spectrum_is_max_entropy;  /* point estimate is the max-entropy
+                                     spectrum with the measured P2, P3 */
     double values[SS_LEVELS_MAX]; /* descending */
     double stderr_[SS_LEVELS_MAX];
     double lower[SS_LEVELS_MAX];
     double upper[SS_LEVELS_MAX];
     double covariance[SS_LEVELS_MAX * SS_LEVELS_MAX]; /* levels x levels */
     double p2, p2_stderr, p3, p3_stderr, p2_p3_covariance;
-    int p3_determined;         /* 0 when no run has atoms >= 3 */
+    int p3_determined; /* 0 when no run has atoms >= 3 */
     int has_feasible_ranges;
     double feasible_lower[SS_LEVELS_MAX];
     double feasible_upper[SS_LEVELS_MAX];
@@ -397,7 +397,7 @@ typedef struct {
                                   region in standard errors (0 inside) */
         double log_likelihood; /* likelihood method only, else NaN */
         unsigned iterations;
-        int fisher_rank;       /* likelihood: rank of the Fisher matrix */
+        int fisher_rank; /* likelihood: rank of the Fisher matrix */
         double fisher_condition;
         double cramer_rao_stderr[SS_LEVELS_MAX]; /* likelihood: CRB sd */
         unsigned bootstrap_replicates;

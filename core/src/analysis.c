@@ -86,7 +86,8 @@ static void ss__region_ranges(ss_analysis *a, const double *theta,
     for (int ring = 1; ring <= 2; ring++)
         for (int k = 0; k < dirs; k++) {
             double ang = 2 * 3.14159265358979323846 * k / dirs;
-            double u = cos(ang) * radius * ring / 2, v = sin(ang) * radius * ring / 2;
+            double u = cos(ang) * radius * ring / 2,
+                   v = sin(ang) * radius * ring / 2;
             double t[2] = {theta[0] + l11 * u, theta[1] + l21 * u + l22 * v};
             double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX], p[SS_LEVELS_MAX];
             if (t[0] < 1.0 / d || t[0] > 1.0)
@@ -154,8 +155,8 @@ static void ss__flag_outside(ss_analysis *a, const ss__fit *fit,
         "The measured power sums (P2 = %.6g%s) lie outside the region any "
         "%u-level spectrum reaches, %.2f standard errors from it: %s. An "
         "offset error of %.4g %s in run %zu would explain the purity part.",
-        fit->theta[0], fit->npar == 2 ? ", with P3" : "", d, dist, cause,
-        shift, cal->unit, big);
+        fit->theta[0], fit->npar == 2 ? ", with P3" : "", d, dist, cause, shift,
+        cal->unit, big);
     ss__flag_number(f, "distance_se", dist);
     ss__flag_number(f, "p2", fit->theta[0]);
     ss__flag_number(f, "p2_stderr", sqrt(fit->cov[0]));
@@ -296,8 +297,8 @@ static ss_status ss__estimate_likelihood(ss_analysis *a,
     unsigned d = a->levels;
     ss__lik_result res;
     ss_status st =
-        ss__likelihood_fit(d, &req->calibration, rs, req->runs,
-                           req->run_count, &req->budget, a->values, &res, err);
+        ss__likelihood_fit(d, &req->calibration, rs, req->runs, req->run_count,
+                           &req->budget, a->values, &res, err);
     if (st != SS_OK)
         return st;
     memcpy(a->values, res.p, d * sizeof *res.p);
@@ -452,9 +453,8 @@ static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
         if (out->candidates[k].degenerate_group) {
             members++;
             prob += out->candidates[k].probability;
-            if (first == SIZE_MAX ||
-                out->candidates[k].probability >
-                    out->candidates[first].probability)
+            if (first == SIZE_MAX || out->candidates[k].probability >
+                                         out->candidates[first].probability)
                 first = k;
         }
     const ss_candidate *c = &out->candidates[first];
@@ -488,8 +488,7 @@ static ss_status ss__candidates_all(ss_analysis *a,
             st = ss_distribution_compute(rs[r].atoms, d, a->values, d,
                                          &req->budget, &dist, err);
         else
-            st = ss_diagram_set_alloc(rs[r].atoms, d, &req->budget, &set,
-                                      err);
+            st = ss_diagram_set_alloc(rs[r].atoms, d, &req->budget, &set, err);
         if (st == SS_OK) {
             ss_run_result *out = &a->runs[r];
             double naive[SS_LEVELS_MAX];
@@ -569,8 +568,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         if (st == SS_OK && boots > 0 && method == SS_METHOD_MOMENTS) {
             double sd[SS_LEVELS_MAX], sdp2 = 0;
             st = ss__moments_bootstrap(d, rs, R, a->values, &fit, boots,
-                                       req->seed, &req->budget, sd, &sdp2,
-                                       err);
+                                       req->seed, &req->budget, sd, &sdp2, err);
             if (st == SS_OK) {
                 a->diagnostics.bootstrap_replicates = boots;
                 memcpy(a->diagnostics.bootstrap_stderr, sd, d * sizeof *sd);

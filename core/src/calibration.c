@@ -31,9 +31,10 @@ ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err) {
             return ss_error_set(err, SS_EINVAL, fields[i].field,
                                 "must be a finite number");
     if (cal->exchange == 0.0)
-        return ss_error_set(err, SS_EINVAL, "calibration.exchange",
-                            "exchange coupling must be non-zero: with J = 0 "
-                            "the energy carries no information on the spectrum");
+        return ss_error_set(
+            err, SS_EINVAL, "calibration.exchange",
+            "exchange coupling must be non-zero: with J = 0 "
+            "the energy carries no information on the spectrum");
     if (cal->noise_sd < 0.0)
         return ss_error_set(err, SS_EINVAL, "calibration.noise_sd",
                             "noise_sd must be >= 0, got %.17g", cal->noise_sd);

@@ -55,9 +55,8 @@ ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
         double e = ss_calibration_energy(cal, atoms, set->content[i]);
         double gap = fabs(e - mean);
         double prob = dist ? dist->probability[i] : 0.0;
-        if (gap < best_gap - tol ||
-            (fabs(gap - best_gap) <= tol && dist &&
-             prob > dist->probability[nearest])) {
+        if (gap < best_gap - tol || (fabs(gap - best_gap) <= tol && dist &&
+                                     prob > dist->probability[nearest])) {
             best_gap = gap;
             nearest = i;
         }
@@ -71,9 +70,9 @@ ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
         double e0 = ss_calibration_energy(cal, atoms, set->content[nearest]);
         for (size_t i = 0; i < n; i++)
             if (set->content[i] == set->content[nearest])
-                picks[count++] = (ss__pick){
-                    i, sd > 0 ? (e0 - mean) / sd : HUGE_VAL,
-                    dist ? dist->probability[i] : 0.0};
+                picks[count++] =
+                    (ss__pick){i, sd > 0 ? (e0 - mean) / sd : HUGE_VAL,
+                               dist ? dist->probability[i] : 0.0};
     }
     qsort(picks, count, sizeof *picks, ss__cmp_pick);
     if (count > SS_CANDIDATES_MAX)

@@ -127,8 +127,7 @@ double ss_diagram_log_dimension(const uint32_t *rows, unsigned levels,
     return (double)acc;
 }
 
-int ss_diagram_is_valid(const uint32_t *rows, unsigned levels,
-                        unsigned atoms) {
+int ss_diagram_is_valid(const uint32_t *rows, unsigned levels, unsigned atoms) {
     uint64_t sum = 0;
     for (unsigned i = 0; i < levels; i++) {
         if (i > 0 && rows[i] > rows[i - 1])

@@ -25,8 +25,7 @@ typedef struct {
 } ss__rank_table;
 
 /* Fills t (saturating at UINT64_MAX).  SS_ENOMEM on failure. */
-ss_status ss__rank_table_init(ss__rank_table *t, unsigned rows,
-                              unsigned atoms);
+ss_status ss__rank_table_init(ss__rank_table *t, unsigned rows, unsigned atoms);
 void ss__rank_table_release(ss__rank_table *t);
 
 static inline uint64_t ss__rank_cum(const ss__rank_table *t, unsigned i,
@@ -62,8 +61,7 @@ int ss__diagram_next(uint32_t *rows, unsigned levels);
 /* log f^λ in extended precision; lfact[k] = log k! and llog[k] = log k for
  * k <= atoms + levels, or NULL to evaluate lgammal/logl directly. */
 long double ss__log_tableaux(const uint32_t *rows, unsigned levels,
-                             const long double *lfact,
-                             const long double *llog);
+                             const long double *lfact, const long double *llog);
 
 /* Recomputes the probabilities of an existing distribution at a new
  * spectrum p (levels entries, validated).  The diagram set is kept; the
@@ -86,8 +84,7 @@ size_t ss__maxent_given_p2(unsigned d, double p2, double *maxent);
 /* A physical spectrum for θ = (P2, P3): the roots for d <= 3, the maximum-
  * entropy spectrum for d >= 4 (or when P3 is unknown), the nearest physical
  * point (Euclidean metric) when θ is outside the region. */
-void ss__point_spectrum(unsigned d, const double *theta, int use_p3,
-                        double *p);
+void ss__point_spectrum(unsigned d, const double *theta, int use_p3, double *p);
 
 /* moments.c — per-run statistics in content units and the GLS fit. */
 typedef struct {
@@ -95,25 +92,24 @@ typedef struct {
     size_t shots;
     double mean_energy, energy_variance; /* as measured, energy units */
     int per_shot;
-    double y1;   /* mean content */
-    double s2;   /* sample variance of the content readings */
-    double y2;   /* s2 − tau2 */
-    double tau2; /* detection-noise variance in content units */
+    double y1;     /* mean content */
+    double s2;     /* sample variance of the content readings */
+    double y2;     /* s2 − tau2 */
+    double tau2;   /* detection-noise variance in content units */
     double m3, m4; /* sample central moments (per-shot runs) */
     double cov[3]; /* Var y1, Cov(y1,y2), Var y2 used in the last fit */
 } ss__run_stats;
 
 typedef struct {
-    int npar;         /* 1: P2 only (d = 2, or no run with n >= 3) */
-    double theta[2];  /* P2, P3 (P3 NaN when undetermined) */
-    double cov[4];    /* 2x2 covariance of theta */
+    int npar;        /* 1: P2 only (d = 2, or no run with n >= 3) */
+    double theta[2]; /* P2, P3 (P3 NaN when undetermined) */
+    double cov[4];   /* 2x2 covariance of theta */
     double chi2;
     int dof;
 } ss__fit;
 
 ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
-                          const ss_budget *budget, ss__fit *fit,
-                          ss_error *err);
+                          const ss_budget *budget, ss__fit *fit, ss_error *err);
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
                                 unsigned replicates, uint64_t seed,
@@ -122,10 +118,10 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
 
 /* likelihood.c — maximum likelihood from per-shot energies. */
 typedef struct {
-    double p[SS_LEVELS_MAX];  /* the maximiser, descending */
+    double p[SS_LEVELS_MAX]; /* the maximiser, descending */
     double neg_log_likelihood;
     unsigned iterations;
-    int boundary;             /* smallest eigenvalue at the boundary (< 1e-7) */
+    int boundary; /* smallest eigenvalue at the boundary (< 1e-7) */
     int covariance_ok;
     double covariance[SS_LEVELS_MAX * SS_LEVELS_MAX]; /* observed info */
     int crb_ok;
@@ -148,8 +144,7 @@ ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
                              double *naive, ss_error *err);
 
 /* request.c — validation and conversion to content units. */
-ss_status ss__request_validate(const ss_analysis_request *req,
-                               ss_error *err);
+ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err);
 void ss__run_stats_fill(const ss_analysis_request *req, ss__run_stats *rs);
 
 /* flags.c — flag construction (NULL when out of memory). */

@@ -147,8 +147,7 @@ static double ss__lik_neglog(ss__lik *L, const double *p) {
     return (double)nll;
 }
 
-static ss_status ss__lik_init(ss__lik *L, unsigned d,
-                              const ss_calibration *cal,
+static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
                               const ss__run_stats *rs, const ss_run *runs,
                               size_t R, const ss_budget *budget,
                               const double *p0, ss_error *err) {
@@ -212,8 +211,8 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d,
                 if (lo == nl || (double)lv->content[lo] != ci ||
                     fabs(c - ci) > fmax(tol, tol_sigma)) {
                     char field[64];
-                    snprintf(field, sizeof field, "runs[%zu].energies[%zu]",
-                             r, s);
+                    snprintf(field, sizeof field, "runs[%zu].energies[%zu]", r,
+                             s);
                     return ss_error_set(
                         err, SS_EINVAL, field,
                         "energy %.10g matches no Young diagram of %u atoms "
@@ -237,8 +236,8 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d,
             double norm = 1.0 / (L->sigma * sqrt(2.0 * SS__PI));
             for (size_t s = 0; s < K; s++)
                 for (size_t l = 0; l < nl; l++) {
-                    double e = ss_calibration_energy(cal, rs[r].atoms,
-                                                     lv->content[l]);
+                    double e =
+                        ss_calibration_energy(cal, rs[r].atoms, lv->content[l]);
                     double u = (runs[r].energies[s] - e) / L->sigma;
                     if (fabs(u) <= SS__KERNEL_SIGMAS)
                         lr->kernel[s * nl + l] = norm * exp(-0.5 * u * u);
@@ -358,8 +357,8 @@ static void ss__lik_fisher(ss__lik *L, const double *p, double h,
         } else {
             /* ∫ ∂f ∂fᵀ / f dE on a grid, f = Σ_l P_l φ_σ(E − E_l) */
             double sg = L->sigma;
-            double e0 = ss_calibration_energy(L->cal, lr->stats->atoms,
-                                              lv->content[0]);
+            double e0 =
+                ss_calibration_energy(L->cal, lr->stats->atoms, lv->content[0]);
             double e1 = ss_calibration_energy(L->cal, lr->stats->atoms,
                                               lv->content[nl - 1]);
             double lo = fmin(e0, e1) - 10 * sg, hi = fmax(e0, e1) + 10 * sg;
@@ -374,10 +373,10 @@ static void ss__lik_fisher(ss__lik *L, const double *p, double h,
                 double E = lo + step * (double)g, f = 0;
                 double df[SS_LEVELS_MAX] = {0};
                 for (size_t l = 0; l < nl; l++) {
-                    double u = (E - ss_calibration_energy(L->cal,
-                                                          lr->stats->atoms,
-                                                          lv->content[l])) /
-                               sg;
+                    double u =
+                        (E - ss_calibration_energy(L->cal, lr->stats->atoms,
+                                                   lv->content[l])) /
+                        sg;
                     if (fabs(u) > SS__KERNEL_SIGMAS)
                         continue;
                     double k = norm * exp(-0.5 * u * u);

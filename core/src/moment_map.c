@@ -109,8 +109,7 @@ typedef struct {
  * m1 v1 + m2 v2 = 1 − m3 t, m1 v1² + m2 v2² = P2 − m3 t².  Returns 0 when the
  * branch has no non-negative real solution. */
 static int ss__branch(const ss__solutions *s, unsigned m1, unsigned m2,
-                      unsigned m3, int sign, double t, double *v1,
-                      double *v2) {
+                      unsigned m3, int sign, double t, double *v1, double *v2) {
     double S1 = 1.0 - m3 * t, S2 = s->p2 - m3 * t * t;
     double disc = (double)m1 * m2 * ((m1 + m2) * S2 - S1 * S1);
     if (disc < 0.0 || S1 < 0.0)
@@ -129,8 +128,8 @@ static double ss__residual(const ss__solutions *s, unsigned m1, unsigned m2,
     return m1 * v1 * v1 * v1 + m2 * v2 * v2 * v2 + m3 * t * t * t - s->p3;
 }
 
-static void ss__record(ss__solutions *s, unsigned m1, unsigned m2,
-                       unsigned m3, double v1, double v2, double t) {
+static void ss__record(ss__solutions *s, unsigned m1, unsigned m2, unsigned m3,
+                       double v1, double v2, double t) {
     double p[SS_LEVELS_MAX] = {0};
     unsigned k = 0;
     for (unsigned i = 0; i < m1; i++)
@@ -323,15 +322,16 @@ double ss__nearest_physical(unsigned d, const double theta[2],
         goto done;
     for (unsigned start = 0; start <= d; start++) {
         for (size_t k = 0; k < dim; k++)
-            gsl_vector_set(x, k, start < d ? (k == start ? 6.0 : 0.0)
-                                           : (start == d ? -3.0 : 0.0));
+            gsl_vector_set(x, k,
+                           start < d ? (k == start ? 6.0 : 0.0)
+                                     : (start == d ? -3.0 : 0.0));
         gsl_vector_set_all(step, 1.0);
         gsl_multimin_fminimizer_set(m, &f, x, step);
         for (int it = 0; it < 4000; it++) {
             if (gsl_multimin_fminimizer_iterate(m) != GSL_SUCCESS)
                 break;
-            if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(m),
-                                       1e-9) == GSL_SUCCESS)
+            if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(m), 1e-9) ==
+                GSL_SUCCESS)
                 break;
         }
         double val = gsl_multimin_fminimizer_minimum(m);

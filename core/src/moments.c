@@ -81,8 +81,8 @@ static void ss__obs_covariance(const ss__run_stats *r, double m2, double m3,
 /* One Gauss–Newton fit with fixed per-run weights.  y[r] are observations;
  * W[r] inverse covariances.  Returns chi2; theta updated; A = JᵀWJ. */
 static double ss__gn(unsigned d, int npar, const ss__run_stats *rs, size_t R,
-                     const double (*y)[2], const double (*W)[3],
-                     double *theta, double A_out[4]) {
+                     const double (*y)[2], const double (*W)[3], double *theta,
+                     double A_out[4]) {
     double chi2 = 0.0;
     for (int it = 0; it < 30; it++) {
         double A[4] = {0}, g[2] = {0};
@@ -143,8 +143,8 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
     for (size_t r = 0; r < R; r++)
         any3 |= rs[r].atoms >= 3;
     int npar = (d >= 3 && any3) ? 2 : 1;
-    double (*y)[2] = malloc(R * sizeof *y);
-    double (*W)[3] = malloc(R * sizeof *W);
+    double(*y)[2] = malloc(R * sizeof *y);
+    double(*W)[3] = malloc(R * sizeof *W);
     if (y == NULL || W == NULL) {
         free(y);
         free(W);
@@ -212,9 +212,9 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
     if (st == SS_OK) {
         fit->npar = npar;
         fit->theta[0] = theta[0];
-        fit->theta[1] = npar == 2 ? theta[1]
-                                  : (d == 2 ? 0.5 * (3.0 * theta[0] - 1.0)
-                                            : nan(""));
+        fit->theta[1] = npar == 2
+                            ? theta[1]
+                            : (d == 2 ? 0.5 * (3.0 * theta[0] - 1.0) : nan(""));
         double cov[4] = {0, 0, 0, 0};
         if (npar == 1) {
             cov[0] = A[0] > 0 ? 1.0 / A[0] : HUGE_VAL;
@@ -240,7 +240,39 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
     return st;
 }
 
-/* --- parametric bootstrap -------------------------------------------------- */
+/* --- parametric bootstrap --------------------------------------------------
+ */
+
+/* One replicate of a run, drawn exactly but without drawing every shot: the
+ * counts per content level are multinomial; with Gaussian noise η the sums
+ * Σ(c+η) and Σ(c+η)² follow from A = Ση ~ N(0, Kτ²), B = Σcη given A
+ * (Gaussian, mean τ²ΣcA/(Kτ²), variance τ²(Σc² − (Σc)²/K)), and the
+ * independent Σ(η − η̄)² ~ τ²χ²_{K−1} (normal sample mean and variance are
+ * independent). */
+static void ss__replicate_run(gsl_rng *rng, size_t nlev, const double *prob,
+                              const int64_t *content, unsigned *cnt,
+                              size_t shots, double tau2, double y[2]) {
+    double K = (double)shots;
+    gsl_ran_multinomial(rng, nlev, (unsigned)shots, prob, cnt);
+    long double s1 = 0, s2 = 0;
+    for (size_t l = 0; l < nlev; l++) {
+        long double c = (long double)content[l];
+        s1 += cnt[l] * c;
+        s2 += cnt[l] * c * c;
+    }
+    if (tau2 > 0) {
+        double tau = sqrt(tau2);
+        double A = gsl_ran_gaussian_ziggurat(rng, tau * sqrt(K));
+        double vb = (double)(tau2 * (s2 - s1 * s1 / K));
+        double B = (double)(s1 * A / K) +
+                   gsl_ran_gaussian_ziggurat(rng, sqrt(fmax(vb, 0.0)));
+        double Q = tau2 * gsl_ran_chisq(rng, K - 1.0);
+        s2 += 2.0L * B + Q + (long double)A * A / K;
+        s1 += A;
+    }
+    y[0] = (double)(s1 / K);
+    y[1] = (double)((s2 - s1 * s1 / K) / (K - 1.0)) - tau2;
+}
 
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
@@ -248,60 +280,41 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const ss_budget *budget, double *sd_spectrum,
                                 double *sd_p2, ss_error *err) {
     ss_status st = SS_OK;
-    size_t nlev = 0;
-    gsl_ran_discrete_t **tables = calloc(R, sizeof *tables);
-    int64_t **contents = calloc(R, sizeof *contents);
-    double (*y)[2] = malloc(R * sizeof *y);
-    double (*W)[3] = malloc(R * sizeof *W);
+    ss_levels **lv = calloc(R, sizeof *lv);
+    double(*y)[2] = malloc(R * sizeof *y);
+    double(*W)[3] = malloc(R * sizeof *W);
+    unsigned *cnt = NULL;
+    size_t maxlev = 1;
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     long double sum[SS_LEVELS_MAX] = {0}, sq[SS_LEVELS_MAX] = {0};
     long double s2sum = 0, s2sq = 0;
-    if (tables == NULL || contents == NULL || y == NULL || W == NULL ||
-        rng == NULL) {
+    if (lv == NULL || y == NULL || W == NULL || rng == NULL) {
         st = ss_error_set(err, SS_ENOMEM, "", NULL);
         goto done;
     }
     gsl_rng_set(rng, (unsigned long)seed);
-    /* exact content law at the estimate, one alias table per run */
+    /* exact content law at the estimate, per run */
     for (size_t r = 0; r < R && st == SS_OK; r++) {
         ss_distribution *dist = NULL;
-        ss_levels *lv = NULL;
         st = ss_distribution_compute(rs[r].atoms, d, p_hat, d, budget, &dist,
                                      err);
         if (st == SS_OK)
-            st = ss_levels_alloc(dist->diagrams, dist->probability, &lv, err);
-        if (st == SS_OK) {
-            nlev = lv->count;
-            contents[r] = malloc(nlev * sizeof **contents);
-            tables[r] = gsl_ran_discrete_preproc(nlev, lv->probability);
-            if (contents[r] == NULL || tables[r] == NULL)
-                st = ss_error_set(err, SS_ENOMEM, "", NULL);
-            else
-                memcpy(contents[r], lv->content, nlev * sizeof **contents);
-        }
-        ss_levels_free(lv);
+            st =
+                ss_levels_alloc(dist->diagrams, dist->probability, &lv[r], err);
+        if (st == SS_OK && lv[r]->count > maxlev)
+            maxlev = lv[r]->count;
         ss_distribution_free(dist);
         ss__invert_cov(rs[r].cov, W[r]);
     }
+    if (st == SS_OK && (cnt = malloc(maxlev * sizeof *cnt)) == NULL)
+        st = ss_error_set(err, SS_ENOMEM, "", NULL);
     if (st != SS_OK)
         goto done;
     for (unsigned b = 0; b < replicates; b++) {
-        for (size_t r = 0; r < R; r++) {
-            double tau = sqrt(rs[r].tau2);
-            long double s = 0, ss = 0;
-            for (size_t k = 0; k < rs[r].shots; k++) {
-                double c = (double)contents[r][gsl_ran_discrete(rng, tables[r])];
-                if (tau > 0)
-                    c += gsl_ran_gaussian_ziggurat(rng, tau);
-                s += c;
-                ss += (long double)c * c;
-            }
-            double K = (double)rs[r].shots;
-            double mean = (double)(s / K);
-            double var = (double)((ss - s * s / K) / (K - 1.0));
-            y[r][0] = mean;
-            y[r][1] = var - rs[r].tau2;
-        }
+        for (size_t r = 0; r < R; r++)
+            ss__replicate_run(rng, lv[r]->count, lv[r]->probability,
+                              lv[r]->content, cnt, rs[r].shots, rs[r].tau2,
+                              y[r]);
         double theta[2] = {fit->theta[0], fit->theta[1]}, A[4];
         ss__gn(d, fit->npar, rs, R, (const double(*)[2])y,
                (const double(*)[3])W, theta, A);
@@ -314,24 +327,18 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
         s2sum += theta[0];
         s2sq += (long double)theta[0] * theta[0];
     }
+    long double nb = replicates, corr = nb / fmaxl(nb - 1.0L, 1.0L);
     for (unsigned i = 0; i < d; i++) {
-        long double m = sum[i] / replicates;
-        sd_spectrum[i] =
-            (double)sqrtl(fmaxl(sq[i] / replicates - m * m, 0.0L) *
-                          replicates / fmax(replicates - 1.0, 1.0));
+        long double m = sum[i] / nb;
+        sd_spectrum[i] = (double)sqrtl(fmaxl(sq[i] / nb - m * m, 0.0L) * corr);
     }
-    {
-        long double m = s2sum / replicates;
-        *sd_p2 = (double)sqrtl(fmaxl(s2sq / replicates - m * m, 0.0L) *
-                               replicates / fmax(replicates - 1.0, 1.0));
-    }
+    long double m2 = s2sum / nb;
+    *sd_p2 = (double)sqrtl(fmaxl(s2sq / nb - m2 * m2, 0.0L) * corr);
 done:
-    for (size_t r = 0; tables && r < R; r++) {
-        gsl_ran_discrete_free(tables[r]);
-        free(contents[r]);
-    }
-    free(tables);
-    free(contents);
+    for (size_t r = 0; lv && r < R; r++)
+        ss_levels_free(lv[r]);
+    free(lv);
+    free(cnt);
     free(y);
     free(W);
     gsl_rng_free(rng);

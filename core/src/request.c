@@ -14,8 +14,8 @@
 /* Bootstrap work cap: replicates × shots drawn (about 5 s of drawing). */
 #define SS__BOOTSTRAP_DRAWS_MAX 500000000.0
 
-static const char *const ss__method_names[] = {"auto", "moments",
-                                               "likelihood", "diagrams"};
+static const char *const ss__method_names[] = {"auto", "moments", "likelihood",
+                                               "diagrams"};
 
 const char *ss_method_name(ss_method m) {
     if ((unsigned)m > SS_METHOD_DIAGRAMS)
@@ -87,8 +87,7 @@ static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
                                 SS_SHOTS_MAX, r->energy_count);
         for (size_t k = 0; k < r->energy_count; k++)
             if (!isfinite(r->energies[k])) {
-                snprintf(field, sizeof field, "runs[%zu].energies[%zu]", i,
-                         k);
+                snprintf(field, sizeof field, "runs[%zu].energies[%zu]", i, k);
                 return ss_error_set(err, SS_EINVAL, field,
                                     "readings must be finite numbers");
             }
@@ -117,8 +116,7 @@ static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
     return SS_OK;
 }
 
-ss_status ss__request_validate(const ss_analysis_request *req,
-                               ss_error *err) {
+ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err) {
     if (req == NULL)
         return ss_error_set(err, SS_EINVAL, "", "no request");
     if (req->levels < SS_LEVELS_MIN || req->levels > SS_LEVELS_MAX)
@@ -146,8 +144,8 @@ ss_status ss__request_validate(const ss_analysis_request *req,
                             "at least one run is needed");
     if (req->run_count > SS_RUNS_MAX)
         return ss_error_set(err, SS_EINVAL, "runs",
-                            "at most %d runs per request, got %zu",
-                            SS_RUNS_MAX, req->run_count);
+                            "at most %d runs per request, got %zu", SS_RUNS_MAX,
+                            req->run_count);
     double total = 0;
     for (size_t i = 0; i < req->run_count; i++) {
         st = ss__validate_run(req, i, err);

@@ -59,8 +59,12 @@ ss_status ss_spectrum_validate(const double *p, size_t len, unsigned levels,
 
 double ss_spectrum_power_sum(const double *p, unsigned levels, unsigned k) {
     long double s = 0.0L;
-    for (unsigned i = 0; i < levels; i++)
-        s += powl((long double)p[i], (long double)k);
+    for (unsigned i = 0; i < levels; i++) {
+        long double t = 1.0L;
+        for (unsigned j = 0; j < k; j++)
+            t *= p[i];
+        s += t;
+    }
     return (double)s;
 }
 

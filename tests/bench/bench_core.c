@@ -73,8 +73,8 @@ static void bench_distribution(unsigned n, unsigned d) {
     size_t count = 0;
     double secs = 0.0, dev = 0.0;
     if (got > 0 && sscanf(buf, "%zu %lf %lf", &count, &secs, &dev) == 3)
-        printf("| %5u | %2u | %10zu | %8.3f | %9.1f | %9.1e |\n", n, d,
-               count, secs, (double)ru.ru_maxrss / 1024.0, dev);
+        printf("| %5u | %2u | %10zu | %8.3f | %9.1f | %9.1e |\n", n, d, count,
+               secs, (double)ru.ru_maxrss / 1024.0, dev);
     else
         printf("| %5u | %2u | failed: %s", n, d, buf);
     fflush(stdout);
