@@ -202,7 +202,9 @@ double ss_content_variance(unsigned atoms, double p2, double p3);
 typedef struct {
     ss_diagram_set *diagrams; /* owned */
     double *probability;      /* diagrams->count entries, sum 1 ± 1e-12 */
-    double *log_probability;  /* natural log; -INFINITY where P = 0 */
+    double *log_probability;  /* natural log; -INFINITY where P is exactly 0
+                                 (more rows than non-zero eigenvalues), and
+                                 finite where P underflows to 0 in double */
     double spectrum[SS_LEVELS_MAX]; /* the input, sorted, first `levels` */
     double mean_content;            /* Σ P·c from the table */
     double content_variance;        /* Σ P·(c − mean)² from the table */
@@ -211,7 +213,10 @@ typedef struct {
 
 /* Validates p (see ss_spectrum_validate: len must equal levels), checks the
  * budget (SS_EBUDGET naming max_diagrams or max_table_cells), and fills the
- * table.  SS_ERANGE when n·ln(d·p_max) is too large for extended precision.
+ * table.  The table needs ss_diagram_table_cells(atoms, r) cells, r the
+ * number of non-zero eigenvalues (zero eigenvalues drop out).  SS_ERANGE
+ * when n·ln(r·p_max) > 10000 (then the probabilities span more than
+ * extended precision holds; f^λ <= r^n bounds the span).
  * budget NULL = default.  Free with ss_distribution_free. */
 ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
                                   const double *p, size_t len,

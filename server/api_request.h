@@ -1,0 +1,40 @@
+/*
+ * api_request.h — the JSON form of an analysis request, parsed strictly.
+ *
+ * Shared by `swapspec analyze` and the HTTP service.  The document is one
+ * object:
+ *   {"levels": 3,
+ *    "calibration": {"offset", "pair_shift", "exchange", "noise_sd", "unit"},
+ *    "runs": [{"atoms", "shots", "mean_energy", "energy_variance"} |
+ *             {"atoms", "energies": [...]}],
+ *    "method": "auto|moments|likelihood|diagrams", "confidence": 0.95,
+ *    "bootstrap": 0, "seed": 1, "window": 3, "label": "..."}
+ * Unknown keys, duplicate keys (rejected when the text is parsed), wrong
+ * types, and runs mixing per-shot and summary fields are errors naming the
+ * field as a path ("runs[2].energy_variance").
+ */
+#ifndef SWAPSPEC_API_REQUEST_H
+#define SWAPSPEC_API_REQUEST_H
+
+#include <jansson.h>
+
+#include "swapspec.h"
+
+typedef struct {
+    ss_analysis_request req; /* runs point into `runs` below */
+    ss_run *runs;            /* owned */
+    double *energies;        /* owned; every per-shot run points into it */
+    char label[128];         /* optional free-form label, "" when absent */
+} api_request;
+
+/* Parses a JSON text (duplicate keys rejected) into *out.  SS_EMALFORMED
+ * for text that is not JSON or not an object; SS_EINVAL for content errors.
+ * On failure *out is left empty (nothing to release). */
+ss_status api_request_parse_text(const char *text, size_t len, api_request *out,
+                                 ss_error *err);
+/* The same from an already parsed object. */
+ss_status api_request_from_json(const json_t *root, api_request *out,
+                                ss_error *err);
+void api_request_release(api_request *r);
+
+#endif /* SWAPSPEC_API_REQUEST_H */
