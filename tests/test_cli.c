@@ -877,11 +877,81 @@ Test(cli, help_version_and_reserved_commands) {
     tc_spawn(&r, TC_ARGS("--version"));
     cr_expect(r.exit_code == 0 && strncmp(r.out, "swapspec ", 9) == 0);
     tc_run_free(&r);
-    static const char *const reserved[] = {"serve", "analyze"};
-    for (int k = 0; k < 2; k++) {
-        json_t *e = tc_fail(TC_ARGS(reserved[k]), "command", TC_EXACT);
-        cr_expect(strstr(json_string_value(tc_get(e, "error")),
-                         "not yet available") != NULL);
-        json_decref(e);
+    json_t *e = tc_fail(TC_ARGS("serve"), "command", TC_EXACT);
+    cr_expect(strstr(json_string_value(tc_get(e, "error")),
+                     "not yet available") != NULL);
+    json_decref(e);
+    /* analyze needs its input */
+    json_decref(tc_fail(TC_ARGS("analyze"), "input", TC_EXACT));
+}
+
+/* ------------------------------------------------------------------------ */
+/* analyze: the request document from the command line                      */
+
+Test(cli, analyze_sample_request) {
+    /* samples/analysis-request.json is simulated from the stated true
+     * spectrum (0.55, 0.30, 0.15) (samples/make-analysis-request.sh); the
+     * estimate is statistical, so only its shape and self-consistency are
+     * asserted here (coverage is tested in test_coverage.c). */
+    json_t *doc = tc_ok(TC_ARGS(
+        "analyze", SWAPSPEC_SOURCE_DIR "/samples/analysis-request.json"));
+    json_t *sp = tc_get(doc, "spectrum");
+    json_t *v = tc_get(sp, "values"), *lo = tc_get(sp, "lower"),
+           *hi = tc_get(sp, "upper");
+    cr_assert(json_array_size(v) == 3);
+    double sum = 0;
+    for (size_t i = 0; i < 3; i++) {
+        double x = json_number_value(json_array_get(v, i));
+        sum += x;
+        cr_expect(json_number_value(json_array_get(lo, i)) <= x &&
+                  x <= json_number_value(json_array_get(hi, i)));
+        if (i > 0)
+            cr_expect(x <= json_number_value(json_array_get(v, i - 1)),
+                      "values must be descending");
+    }
+    cr_expect(fabs(sum - 1.0) < 1e-9, "values sum to %.17g", sum);
+    cr_expect(json_array_size(tc_get(doc, "runs")) == 2);
+    cr_expect(json_is_string(tc_get(doc, "note")));
+    cr_expect(strcmp(json_string_value(tc_get(doc, "label")),
+                     "quillfeather/boxtrap-a/2026-11-30/demo") == 0);
+    json_decref(doc);
+}
+
+Test(cli, analyze_bad_requests_name_the_field) {
+    static const struct {
+        const char *body, *field;
+    } cases[] = {
+        {"{\"levels\":3,\"runs\":[{\"atoms\":6,\"shots\":10,"
+         "\"mean_energy\":3,\"energy_variance\":-1}]}",
+         "runs[0].energy_variance"},
+        {"{\"levels\":3,\"runs\":[{\"atoms\":6,\"shots\":10,"
+         "\"mean_energy\":3,\"energy_variance\":1,\"colour\":1}]}",
+         "runs[0].colour"},
+        {"{\"levels\":3,\"runs\":[{\"atoms\":6,\"energies\":[]}]}",
+         "runs[0].energies"},
+        {"{\"levels\":3,\"runs\":[{\"atoms\":6,\"energies\":[1,\"x\"]}]}",
+         "runs[0].energies[1]"},
+        {"{\"levels\":3,\"confidence\":1.5,\"runs\":[{\"atoms\":6,"
+         "\"shots\":10,\"mean_energy\":3,\"energy_variance\":1}]}",
+         "confidence"},
+        {"{\"levels\":3,\"calibration\":{\"offset\":0,\"pair_shift\":0,"
+         "\"exchange\":0,\"noise_sd\":0},\"runs\":[{\"atoms\":6,"
+         "\"shots\":10,\"mean_energy\":3,\"energy_variance\":1}]}",
+         "calibration.exchange"},
+        {"{\"levels\":3,\"runs\":[{\"atoms\":6,\"shots\":1,"
+         "\"mean_energy\":3,\"energy_variance\":1}]}",
+         "runs[0].shots"},
+        {"{\"levels\":3,\"method\":\"guess\",\"runs\":[{\"atoms\":6,"
+         "\"shots\":10,\"mean_energy\":3,\"energy_variance\":1}]}",
+         "method"},
+        {"{\"levels\":3,\"levels\":4,\"runs\":[]}", ""},
+        {"[1,2]", ""},
+    };
+    for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
+        char name[32];
+        snprintf(name, sizeof name, "req%zu.json", k);
+        const char *path = tc_write_file(name, cases[k].body);
+        json_decref(tc_fail(TC_ARGS("analyze", path), cases[k].field,
+                            TC_EXACT));
     }
 }
