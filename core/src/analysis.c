@@ -554,7 +554,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
     double zc = gsl_cdf_ugaussian_Pinv(0.5 + 0.5 * req->confidence);
     if (method != SS_METHOD_DIAGRAMS) {
         ss__fit fit;
-        st = ss__moments_fit(d, rs, R, &req->budget, &fit, err);
+        st = ss__moments_fit(d, rs, R, &fit, err);
         if (st != SS_OK)
             goto done;
         a->diagnostics.chi2 = fit.chi2;

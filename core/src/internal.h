@@ -86,6 +86,11 @@ size_t ss__maxent_given_p2(unsigned d, double p2, double *maxent);
  * point (Euclidean metric) when θ is outside the region. */
 void ss__point_spectrum(unsigned d, const double *theta, int use_p3, double *p);
 
+/* content_moments.c — exact mean and central moments μ2, μ3, μ4 of the
+ * content sum at spectrum p (closed form through P2..P5). */
+void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
+                         double *mean, double central[3]);
+
 /* moments.c — per-run statistics in content units and the GLS fit. */
 typedef struct {
     unsigned atoms;
@@ -109,7 +114,7 @@ typedef struct {
 } ss__fit;
 
 ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
-                          const ss_budget *budget, ss__fit *fit, ss_error *err);
+                          ss__fit *fit, ss_error *err);
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
                                 unsigned replicates, uint64_t seed,

@@ -42,30 +42,6 @@ static void ss__model(unsigned d, int npar, unsigned n, const double *theta,
         J[1][0] += 3.0 * (n - 2.0) * N;
 }
 
-/* Central moments of the exact content law at spectrum p for n atoms. */
-static ss_status ss__model_moments(unsigned n, unsigned d, const double *p,
-                                   const ss_budget *b, double m[3],
-                                   ss_error *err) {
-    ss_distribution *dist = NULL;
-    ss_status st = ss_distribution_compute(n, d, p, d, b, &dist, err);
-    if (st != SS_OK)
-        return st;
-    long double m2 = 0, m3 = 0, m4 = 0;
-    for (size_t i = 0; i < dist->diagrams->count; i++) {
-        long double dc =
-            (long double)dist->diagrams->content[i] - dist->mean_content;
-        long double w = dist->probability[i];
-        m2 += w * dc * dc;
-        m3 += w * dc * dc * dc;
-        m4 += w * dc * dc * dc * dc;
-    }
-    m[0] = (double)m2;
-    m[1] = (double)m3;
-    m[2] = (double)m4;
-    ss_distribution_free(dist);
-    return SS_OK;
-}
-
 /* Covariance of (y1, y2) from moments of the noise-free content (m2, m3, m4)
  * and the noise variance tau2. */
 static void ss__obs_covariance(const ss__run_stats *r, double m2, double m3,
@@ -136,8 +112,7 @@ static void ss__invert_cov(const double c[3], double w[3]) {
     w[2] = c[0] / det;
 }
 
-ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
-                          const ss_budget *budget, ss__fit *fit,
+ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
                           ss_error *err) {
     int any3 = 0;
     for (size_t r = 0; r < R; r++)
@@ -180,9 +155,7 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
         /* spectrum at which the summary runs' higher moments are taken */
         double p[SS_LEVELS_MAX];
         ss__point_spectrum(d, theta, npar == 2, p);
-        unsigned cached_n = 0;
-        double mm[3] = {0, 0, 0};
-        for (size_t r = 0; r < R && st == SS_OK; r++) {
+        for (size_t r = 0; r < R; r++) {
             double m2, m3, m4;
             if (rs[r].per_shot) {
                 m2 = fmax(rs[r].s2 - rs[r].tau2, 0.0);
@@ -191,14 +164,12 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
                 m4 = fmax(rs[r].m4 - 6.0 * m2 * rs[r].tau2 -
                               3.0 * rs[r].tau2 * rs[r].tau2,
                           m2 * m2);
-            } else {
-                if (rs[r].atoms != cached_n) {
-                    st = ss__model_moments(rs[r].atoms, d, p, budget, mm, err);
-                    cached_n = rs[r].atoms;
-                }
-                m2 = mm[0];
-                m3 = mm[1];
-                m4 = mm[2];
+            } else { /* exact model moments at the current estimate */
+                double mean, c[3];
+                ss__content_moments(rs[r].atoms, p, d, &mean, c);
+                m2 = c[0];
+                m3 = c[1];
+                m4 = c[2];
             }
             double cov[3];
             ss__obs_covariance(&rs[r], m2, m3, m4, cov);
