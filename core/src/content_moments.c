@@ -58,3 +58,17 @@ void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
     central[1] = (double)m3;
     central[2] = (double)m4;
 }
+
+ss_status ss_content_moments(unsigned atoms, const double *p, size_t len,
+                             unsigned levels, double out[4], ss_error *err) {
+    double q[SS_LEVELS_MAX];
+    ss_status st = ss_spectrum_validate(p, len, levels, q, err);
+    if (st != SS_OK)
+        return st;
+    if (atoms < 1 || atoms > SS_ATOMS_MAX)
+        return ss_error_set(err, SS_EINVAL, "atoms",
+                            "atoms must be an integer from 1 to %d, got %u",
+                            SS_ATOMS_MAX, atoms);
+    ss__content_moments(atoms, q, levels, &out[0], out + 1);
+    return SS_OK;
+}
