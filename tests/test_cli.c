@@ -893,8 +893,8 @@ Test(cli, analyze_sample_request) {
      * spectrum (0.55, 0.30, 0.15) (samples/make-analysis-request.sh); the
      * estimate is statistical, so only its shape and self-consistency are
      * asserted here (coverage is tested in test_coverage.c). */
-    json_t *doc = tc_ok(TC_ARGS(
-        "analyze", SWAPSPEC_SOURCE_DIR "/samples/analysis-request.json"));
+    json_t *doc = tc_ok(TC_ARGS("analyze", SWAPSPEC_SOURCE_DIR
+                                "/samples/analysis-request.json"));
     json_t *sp = tc_get(doc, "spectrum");
     json_t *v = tc_get(sp, "values"), *lo = tc_get(sp, "lower"),
            *hi = tc_get(sp, "upper");
@@ -951,7 +951,7 @@ Test(cli, analyze_bad_requests_name_the_field) {
         char name[32];
         snprintf(name, sizeof name, "req%zu.json", k);
         const char *path = tc_write_file(name, cases[k].body);
-        json_decref(tc_fail(TC_ARGS("analyze", path), cases[k].field,
-                            TC_EXACT));
+        json_decref(
+            tc_fail(TC_ARGS("analyze", path), cases[k].field, TC_EXACT));
     }
 }

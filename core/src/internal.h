@@ -113,8 +113,8 @@ typedef struct {
     int dof;
 } ss__fit;
 
-ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R,
-                          ss__fit *fit, ss_error *err);
+ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
+                          ss_error *err);
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
                                 unsigned replicates, uint64_t seed,

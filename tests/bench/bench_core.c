@@ -116,8 +116,9 @@ static void bench_moments(void) {
     for (unsigned r = 0; r < 10; r++) {
         unsigned n = 8 + 2 * r;
         double p2 = 0.46, p3 = 0.244; /* p = (0.6, 0.3, 0.1) */
-        runs[r] = (ss_run){n, 400, ss_content_mean(n, p2),
-                           ss_content_variance(n, p2, p3), NULL, 0};
+        runs[r] = (ss_run){
+            n,    400, ss_content_mean(n, p2), ss_content_variance(n, p2, p3),
+            NULL, 0};
     }
     ss_analysis_request req = ss_analysis_request_default();
     req.levels = 3;
