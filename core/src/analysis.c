@@ -559,7 +559,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
             goto done;
         a->diagnostics.chi2 = fit.chi2;
         a->diagnostics.dof = fit.dof;
-        if (fit.dof > 0)
+        if (fit.dof > 0 && isfinite(fit.chi2) && fit.chi2 >= 0)
             a->diagnostics.p_value = gsl_cdf_chisq_Q(fit.chi2, fit.dof);
         st = ss__estimate_moments(a, req, rs, &fit, zc, err);
         unsigned boots = req->bootstrap;

@@ -31,6 +31,10 @@
 #include <string.h>
 
 #define SS__MATCH_TOL 1e-6
+/* −log L where the likelihood vanishes: large but finite, because GSL's
+ * minimisers raise an error (and would call the abort handler) on
+ * non-finite values. */
+#define SS__NLL_ZERO 1e300
 #define SS__PI 3.14159265358979323846
 #define SS__KERNEL_SIGMAS 12.0
 #define SS__KERNEL_MAX ((size_t)64 * 1024 * 1024) /* doubles in all kernels */
@@ -102,7 +106,7 @@ static int ss__lik_update(ss__lik *L, const double *p) {
 
 static double ss__lik_neglog(ss__lik *L, const double *p) {
     if (!ss__lik_update(L, p))
-        return HUGE_VAL;
+        return SS__NLL_ZERO;
     long double nll = 0;
     double P2 = ss_spectrum_power_sum(p, L->d, 2);
     double P3 = ss_spectrum_power_sum(p, L->d, 3);
@@ -128,7 +132,7 @@ static double ss__lik_neglog(ss__lik *L, const double *p) {
             for (size_t l = 0; l < nl; l++)
                 if (lr->counts[l] > 0) {
                     if (lr->level_prob[l] <= 0)
-                        return HUGE_VAL;
+                        return SS__NLL_ZERO;
                     nll -= lr->counts[l] * log(lr->level_prob[l]);
                 }
         } else {
@@ -139,7 +143,7 @@ static double ss__lik_neglog(ss__lik *L, const double *p) {
                 for (size_t l = 0; l < nl; l++)
                     acc += k[l] * lr->level_prob[l];
                 if (acc <= 0)
-                    return HUGE_VAL;
+                    return SS__NLL_ZERO;
                 nll -= logl(acc);
             }
         }
@@ -454,7 +458,7 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
             }
         }
     }
-    if (!isfinite(best)) {
+    if (!(best < SS__NLL_ZERO)) {
         st = ss_error_set(err, SS_EINTERNAL, "runs",
                           "the likelihood is zero everywhere tried");
         goto done;
@@ -499,7 +503,7 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
         }
     int hess_ok = 1;
     for (size_t i = 0; i < m * m; i++)
-        hess_ok &= isfinite(hess[i]);
+        hess_ok &= isfinite(hess[i]) && fabs(hess[i]) < 1e200;
     out->covariance_ok = hess_ok && ss__sym_invert(hess, m);
     if (out->covariance_ok)
         ss__expand_cov(d, hess, out->covariance);
@@ -512,7 +516,10 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
     gsl_matrix *Fc = gsl_matrix_alloc(m, m);
     gsl_vector *ev = gsl_vector_alloc(m);
     gsl_eigen_symm_workspace *w = gsl_eigen_symm_alloc(m);
-    if (Fc && ev && w) {
+    int fisher_ok = 1;
+    for (size_t i = 0; i < m * m; i++)
+        fisher_ok &= isfinite(fisher[i]);
+    if (Fc && ev && w && fisher_ok) {
         gsl_matrix_memcpy(Fc, &F.matrix);
         gsl_eigen_symm(Fc, ev, w);
         double emax = gsl_vector_max(ev), emin = gsl_vector_min(ev);
@@ -525,7 +532,7 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
     gsl_matrix_free(Fc);
     gsl_vector_free(ev);
     gsl_eigen_symm_free(w);
-    if (ss__sym_invert(fisher, m)) {
+    if (fisher_ok && ss__sym_invert(fisher, m)) {
         double crb[SS_LEVELS_MAX * SS_LEVELS_MAX];
         ss__expand_cov(d, fisher, crb);
         for (unsigned i = 0; i < d; i++)

@@ -327,7 +327,7 @@ double ss__nearest_physical(unsigned d, const double theta[2],
                                      : (start == d ? -3.0 : 0.0));
         gsl_vector_set_all(step, 1.0);
         gsl_multimin_fminimizer_set(m, &f, x, step);
-        for (int it = 0; it < 4000; it++) {
+        for (int it = 0; it < 1500; it++) {
             if (gsl_multimin_fminimizer_iterate(m) != GSL_SUCCESS)
                 break;
             if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(m), 1e-9) ==
