@@ -118,7 +118,8 @@ json_t *api_render_analysis(const ss_analysis *a, const ss_calibration *cal,
     if (a->has_spectrum) {
         json_object_set_new(
             doc, "spectrum",
-            json_pack("{s:o,s:o,s:o,s:o,s:s}", "values",
+            json_pack("{s:s,s:o,s:o,s:o,s:o,s:s}", "interval",
+                      ss_interval_name(a->interval), "values",
                       rnd_reals(a->values, d), "stderr",
                       rnd_reals(a->stderr_, d), "lower", rnd_reals(a->lower, d),
                       "upper", rnd_reals(a->upper, d), "estimate",

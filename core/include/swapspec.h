@@ -355,6 +355,23 @@ typedef struct {
     } numbers[SS_FLAG_NUMBERS_MAX];
 } ss_flag;
 
+/* How the intervals [lower, upper] of a spectrum were made. */
+typedef enum {
+    SS_INTERVAL_DELTA,     /* value ± z·stderr, delta method (or observed
+                              information for the likelihood) */
+    SS_INTERVAL_BOOTSTRAP, /* percentile interval of a parametric bootstrap
+                              (used where the delta method breaks down:
+                              nearly equal eigenvalues) */
+    SS_INTERVAL_REGION,    /* range over all spectra whose power sums lie in
+                              the confidence region (underdetermined) */
+    SS_INTERVAL_PROFILE    /* profile-likelihood interval (likelihood at a
+                              non-regular point) */
+} ss_interval_kind;
+
+/* "delta-method", "bootstrap-percentile", "confidence-region",
+ * "profile-likelihood". */
+const char *ss_interval_name(ss_interval_kind k);
+
 typedef struct {
     uint32_t rows[SS_LEVELS_MAX];
     int64_t content;
@@ -386,6 +403,7 @@ typedef struct {
     int has_spectrum;             /* 0 for method diagrams */
     int spectrum_is_max_entropy;  /* point estimate is the max-entropy
                                      spectrum with the measured P2, P3 */
+    ss_interval_kind interval;    /* how lower/upper were made */
     double values[SS_LEVELS_MAX]; /* descending */
     double stderr_[SS_LEVELS_MAX];
     double lower[SS_LEVELS_MAX];

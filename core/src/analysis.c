@@ -24,8 +24,8 @@
 static double ss__sq(double x) { return x * x; }
 
 static void ss__set_intervals(ss_analysis *a, double zc) {
-    if (a->spectrum_is_max_entropy)
-        return; /* set from the confidence region of (P2, P3) */
+    if (a->interval != SS_INTERVAL_DELTA)
+        return; /* made where the interval kind was chosen */
     for (unsigned i = 0; i < a->levels; i++) {
         double se = a->stderr_[i], v = a->values[i];
         a->lower[i] = isfinite(se) ? fmax(0.0, v - zc * se) : 0.0;
@@ -109,6 +109,74 @@ static void ss__region_ranges(ss_analysis *a, const double *theta,
     }
 }
 
+/* d = 3: the profile interval of each eigenvalue under the
+ * Gaussian approximation for (P2, P3), i.e. its range over the physical
+ * points of the ellipse (θ − θ̂)ᵀΣ⁻¹(θ − θ̂) <= z² (z the normal quantile:
+ * one degree of freedom per eigenvalue).  It follows the curved root map
+ * instead of linearising it, which is what fails near equal eigenvalues.
+ * The physical part of the ellipse is sampled on rings and along the three
+ * boundary families of the region (ties and a zero eigenvalue).  Returns 0
+ * when no sampled point is physical. */
+static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
+    double l11 = sqrt(fit->cov[0]);
+    double l21 = fit->cov[1] / l11;
+    double l22 = sqrt(fmax(fit->cov[3] - l21 * l21, 0));
+    double det = fit->cov[0] * fit->cov[3] - fit->cov[1] * fit->cov[1];
+    if (!(l11 > 0) || !(det > 0))
+        return 0;
+    double lo[3] = {1, 1, 1}, hi[3] = {0, 0, 0};
+    int found = 0;
+    for (int ring = 1; ring <= 8; ring++)
+        for (int k = 0; k < 64; k++) {
+            double ang = 2 * 3.14159265358979323846 * k / 64;
+            double u = cos(ang) * zc * ring / 8, v = sin(ang) * zc * ring / 8;
+            double p[3];
+            if (!ss__spectrum_from_moments(3, fit->theta[0] + l11 * u,
+                                           fit->theta[1] + l21 * u + l22 * v,
+                                           p))
+                continue;
+            for (int i = 0; i < 3; i++) {
+                lo[i] = fmin(lo[i], p[i]);
+                hi[i] = fmax(hi[i], p[i]);
+            }
+            found = 1;
+        }
+    for (int fam = 0; fam < 3; fam++)
+        for (int k = 0; k <= 400; k++) {
+            double t = k / 400.0, p[3];
+            if (fam == 0) { /* (t, (1−t)/2, (1−t)/2), t in [1/3, 1] */
+                p[0] = 1.0 / 3 + t * 2.0 / 3;
+                p[1] = p[2] = 0.5 * (1 - p[0]);
+            } else if (fam == 1) { /* (t, t, 1−2t), t in [1/3, 1/2] */
+                p[0] = p[1] = 1.0 / 3 + t / 6;
+                p[2] = 1 - 2 * p[0];
+            } else { /* (t, 1−t, 0), t in [1/2, 1] */
+                p[0] = 0.5 + t / 2;
+                p[1] = 1 - p[0];
+                p[2] = 0;
+            }
+            double r0 = ss_spectrum_power_sum(p, 3, 2) - fit->theta[0];
+            double r1 = ss_spectrum_power_sum(p, 3, 3) - fit->theta[1];
+            double q = (r0 * r0 * fit->cov[3] - 2 * r0 * r1 * fit->cov[1] +
+                        r1 * r1 * fit->cov[0]) /
+                       det;
+            if (q > zc * zc)
+                continue;
+            for (int i = 0; i < 3; i++) {
+                lo[i] = fmin(lo[i], p[i]);
+                hi[i] = fmax(hi[i], p[i]);
+            }
+            found = 1;
+        }
+    if (!found)
+        return 0;
+    for (int i = 0; i < 3; i++) {
+        a->lower[i] = fmin(lo[i], a->values[i]);
+        a->upper[i] = fmax(hi[i], a->values[i]);
+    }
+    return 1;
+}
+
 static int ss__inside(unsigned d, const ss__fit *fit) {
     double P2 = fit->theta[0], P3 = fit->theta[1], p[SS_LEVELS_MAX];
     double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX];
@@ -154,9 +222,9 @@ static void ss__flag_outside(ss_analysis *a, const ss__fit *fit,
         a, SS_FLAG_OUTSIDE_PHYSICAL, -1,
         "The measured power sums (P2 = %.6g%s) lie outside the region any "
         "%u-level spectrum reaches, %.2f standard errors from it: %s. An "
-        "offset error of %.4g %s in run %zu would explain the purity part.",
+        "offset error of %.4g%s%s in run %zu would explain the purity part.",
         fit->theta[0], fit->npar == 2 ? ", with P3" : "", d, dist, cause, shift,
-        cal->unit, big);
+        cal->unit[0] ? " " : "", cal->unit, big);
     ss__flag_number(f, "distance_se", dist);
     ss__flag_number(f, "p2", fit->theta[0]);
     ss__flag_number(f, "p2_stderr", sqrt(fit->cov[0]));
@@ -241,6 +309,7 @@ static ss_status ss__estimate_moments(ss_analysis *a,
         memcpy(a->feasible_upper, hi, d * sizeof *hi);
         a->has_feasible_ranges = 1;
         a->spectrum_is_max_entropy = 1;
+        a->interval = SS_INTERVAL_REGION;
         ss__region_ranges(a, theta, fit, use_p3);
         int npar = use_p3 ? 2 : 1;
         ss_flag *f = ss__flag_add(
@@ -277,9 +346,10 @@ static ss_status ss__estimate_moments(ss_analysis *a,
                 a, SS_FLAG_ILL_CONDITIONED, -1,
                 "Two eigenvalues are nearly equal (gap %.3g, standard error "
                 "%.3g): the map from power sums to eigenvalues is nearly "
-                "singular there, so the delta-method error bars are "
-                "unreliable; the bootstrap standard errors in diagnostics "
-                "are the ones to trust.",
+                "singular there, so delta-method standard errors mislead; "
+                "the intervals follow the curved map instead (profile "
+                "intervals for three levels, bootstrap percentiles "
+                "otherwise; see spectrum.interval).",
                 gap, gap_se);
             ss__flag_number(f, "min_gap", gap);
             ss__flag_number(f, "gap_stderr", gap_se);
@@ -292,13 +362,13 @@ static ss_status ss__estimate_moments(ss_analysis *a,
 
 static ss_status ss__estimate_likelihood(ss_analysis *a,
                                          const ss_analysis_request *req,
-                                         const ss__run_stats *rs,
+                                         const ss__run_stats *rs, double zc,
                                          ss_error *err) {
     unsigned d = a->levels;
     ss__lik_result res;
     ss_status st =
         ss__likelihood_fit(d, &req->calibration, rs, req->runs, req->run_count,
-                           &req->budget, a->values, &res, err);
+                           &req->budget, a->values, zc, &res, err);
     if (st != SS_OK)
         return st;
     memcpy(a->values, res.p, d * sizeof *res.p);
@@ -353,6 +423,7 @@ static ss_status ss__estimate_likelihood(ss_analysis *a,
     if (full || min_gap < 1e-4) {
         a->has_feasible_ranges = 0;
         a->spectrum_is_max_entropy = 0;
+        a->interval = SS_INTERVAL_DELTA;
     }
     if (!full && min_gap < 1e-4) {
         ss_flag *f = ss__flag_add(
@@ -387,8 +458,12 @@ static ss_status ss__estimate_likelihood(ss_analysis *a,
             res.fisher_condition);
         ss__flag_number(f, "fisher_condition", res.fisher_condition);
     }
-    if (res.boundary) {
-        a->stderr_[d - 1] = fmax(a->stderr_[d - 1], 0.0);
+    if (res.profile_ok) {
+        a->interval = SS_INTERVAL_PROFILE;
+        for (unsigned i = 0; i < d; i++) {
+            a->lower[i] = res.profile_lower[i];
+            a->upper[i] = res.profile_upper[i];
+        }
     }
     return SS_OK;
 }
@@ -562,23 +637,43 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         if (fit.dof > 0 && isfinite(fit.chi2) && fit.chi2 >= 0)
             a->diagnostics.p_value = gsl_cdf_chisq_Q(fit.chi2, fit.dof);
         st = ss__estimate_moments(a, req, rs, &fit, zc, err);
+        /* d = 3: profile intervals follow the curved root map (the delta
+         * method linearises it and fails near equal eigenvalues) */
+        if (st == SS_OK && method == SS_METHOD_MOMENTS && d == 3 &&
+            fit.npar == 2 && !a->spectrum_is_max_entropy &&
+            ss__profile_d3(a, &fit, zc))
+            a->interval = SS_INTERVAL_PROFILE;
+        /* where the delta method gives no standard error at all (a
+         * singular root map), a parametric bootstrap supplies it, and the
+         * intervals too unless they are profile intervals */
+        int singular = !isfinite(a->stderr_[0]);
         unsigned boots = req->bootstrap;
-        if (boots == 0 && !isfinite(a->stderr_[0]))
+        if (singular && boots < SS__AUTO_BOOTSTRAP &&
+            method == SS_METHOD_MOMENTS)
             boots = SS__AUTO_BOOTSTRAP;
         if (st == SS_OK && boots > 0 && method == SS_METHOD_MOMENTS) {
-            double sd[SS_LEVELS_MAX], sdp2 = 0;
+            double sd[SS_LEVELS_MAX], qlo[SS_LEVELS_MAX], qhi[SS_LEVELS_MAX];
+            double sdp2 = 0;
             st = ss__moments_bootstrap(d, rs, R, a->values, &fit, boots,
-                                       req->seed, &req->budget, sd, &sdp2, err);
+                                       req->seed, &req->budget, req->confidence,
+                                       sd, &sdp2, qlo, qhi, err);
             if (st == SS_OK) {
                 a->diagnostics.bootstrap_replicates = boots;
                 memcpy(a->diagnostics.bootstrap_stderr, sd, d * sizeof *sd);
                 a->diagnostics.bootstrap_p2_stderr = sdp2;
-                if (!isfinite(a->stderr_[0]))
+                if (singular)
                     memcpy(a->stderr_, sd, d * sizeof *sd);
+                if (singular && a->interval == SS_INTERVAL_DELTA) {
+                    a->interval = SS_INTERVAL_BOOTSTRAP;
+                    for (unsigned i = 0; i < d; i++) {
+                        a->lower[i] = fmin(qlo[i], a->values[i]);
+                        a->upper[i] = fmax(qhi[i], a->values[i]);
+                    }
+                }
             }
         }
         if (st == SS_OK && method == SS_METHOD_LIKELIHOOD) {
-            st = ss__estimate_likelihood(a, req, rs, err);
+            st = ss__estimate_likelihood(a, req, rs, zc, err);
             if (st == SS_EBUDGET && req->method == SS_METHOD_AUTO) {
                 ss_error_clear(err); /* too big for the likelihood: stay */
                 a->method = SS_METHOD_MOMENTS;

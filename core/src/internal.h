@@ -115,11 +115,15 @@ typedef struct {
 
 ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
                           ss_error *err);
+/* Parametric bootstrap of the moment fit at p_hat: standard deviations of
+ * the spectrum (sd_spectrum) and of P2 (sd_p2), and the percentile interval
+ * at `confidence` of each eigenvalue (q_lo, q_hi). */
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
                                 unsigned replicates, uint64_t seed,
-                                const ss_budget *budget, double *sd_spectrum,
-                                double *sd_p2, ss_error *err);
+                                const ss_budget *budget, double confidence,
+                                double *sd_spectrum, double *sd_p2,
+                                double *q_lo, double *q_hi, ss_error *err);
 
 /* likelihood.c — maximum likelihood from per-shot energies. */
 typedef struct {
@@ -133,13 +137,17 @@ typedef struct {
     double crb_stderr[SS_LEVELS_MAX];
     int fisher_rank;
     double fisher_condition;
+    int profile_ok; /* profile-likelihood intervals computed (ties) */
+    double profile_lower[SS_LEVELS_MAX], profile_upper[SS_LEVELS_MAX];
 } ss__lik_result;
 
+/* profile_z > 0: at a non-regular maximum (tie, singular information) also
+ * compute profile-likelihood intervals with 2Δℓ <= profile_z². */
 ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
                              const ss__run_stats *rs, const ss_run *runs,
                              size_t R, const ss_budget *budget,
-                             const double *p_start, ss__lik_result *out,
-                             ss_error *err);
+                             const double *p_start, double profile_z,
+                             ss__lik_result *out, ss_error *err);
 
 /* candidates.c — diagrams behind one run's energies; naive λ/n. */
 ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,

@@ -401,11 +401,90 @@ static void ss__lik_fisher(ss__lik *L, const double *p, double h,
     ss__lik_update(L, p);
 }
 
+/* The profile-likelihood interval of each ordered eigenvalue: the range of
+ * p_i over {p : 2(ℓ_max − ℓ(p)) <= z²} (Wilks; one degree of freedom per
+ * eigenvalue), each end found by Nelder–Mead on ±p_i plus an exact penalty
+ * for leaving that set, started at the maximum. */
+typedef struct {
+    ss__lik *L;
+    unsigned index;
+    double sign, nll_best, limit;
+} ss__profile_ctx;
+
+static int ss__cmp_desc_p(const void *a, const void *b) {
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x < y) - (x > y);
+}
+
+/* Coordinates x = (p_1..p_{d−1}), p_d = 1 − Σx, unordered (the likelihood
+ * is symmetric); 0 when x leaves the simplex. */
+static int ss__profile_point(unsigned d, const gsl_vector *v, double *p) {
+    double last = 1.0;
+    for (unsigned k = 0; k + 1 < d; k++) {
+        p[k] = gsl_vector_get(v, k);
+        last -= p[k];
+        if (p[k] < 0)
+            return 0;
+    }
+    p[d - 1] = last;
+    if (last < 0)
+        return 0;
+    qsort(p, d, sizeof *p, ss__cmp_desc_p);
+    return 1;
+}
+
+static double ss__profile_objective(const gsl_vector *v, void *params) {
+    const ss__profile_ctx *c = params;
+    double p[SS_LEVELS_MAX];
+    if (!ss__profile_point(c->L->d, v, p))
+        return 100.0;
+    double excess = 2.0 * (ss__lik_neglog(c->L, p) - c->nll_best) - c->limit;
+    return c->sign * p[c->index] + (excess > 0 ? 10.0 + excess : 0.0);
+}
+
+static int ss__lik_profile(ss__lik *L, gsl_multimin_fminimizer *mz,
+                           gsl_vector *x, gsl_vector *step, const double *p0,
+                           double nll_best, double zc, double *lo, double *hi) {
+    unsigned d = L->d;
+    size_t m = d - 1;
+    ss__profile_ctx c = {L, 0, 1.0, nll_best, zc * zc};
+    gsl_multimin_function f = {ss__profile_objective, m, &c};
+    for (unsigned i = 0; i < d; i++) {
+        lo[i] = hi[i] = p0[i];
+        for (int s = -1; s <= 1; s += 2) {
+            c.index = i;
+            c.sign = s;
+            /* start at the maximum, nudged into the simplex's interior */
+            for (size_t k = 0; k < m; k++)
+                gsl_vector_set(x, k, 0.98 * p0[k] + 0.02 / d);
+            gsl_vector_set_all(step, 0.02);
+            if (gsl_multimin_fminimizer_set(mz, &f, x, step) != GSL_SUCCESS)
+                return 0;
+            for (int it = 0; it < 3000; it++) {
+                if (gsl_multimin_fminimizer_iterate(mz) != GSL_SUCCESS)
+                    break;
+                if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(mz),
+                                           1e-7) == GSL_SUCCESS)
+                    break;
+            }
+            double p[SS_LEVELS_MAX];
+            if (!ss__profile_point(d, mz->x, p) ||
+                2.0 * (ss__lik_neglog(L, p) - nll_best) > c.limit + 1e-6)
+                continue; /* not admissible: keep the other end */
+            if (s > 0)
+                lo[i] = fmin(lo[i], p[i]);
+            else
+                hi[i] = fmax(hi[i], p[i]);
+        }
+    }
+    return 1;
+}
+
 ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
                              const ss__run_stats *rs, const ss_run *runs,
                              size_t R, const ss_budget *budget,
-                             const double *p_start, ss__lik_result *out,
-                             ss_error *err) {
+                             const double *p_start, double profile_z,
+                             ss__lik_result *out, ss_error *err) {
     ss__lik L;
     ss_status st = ss__lik_init(&L, d, cal, rs, runs, R, budget, p_start, err);
     gsl_multimin_fminimizer *mz = NULL;
@@ -539,6 +618,15 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
             out->crb_stderr[i] = sqrt(fmax(crb[i * d + i], 0.0));
         out->crb_ok = 1;
     }
+    /* near ties the Wald interval misleads: profile likelihood there */
+    double min_gap = HUGE_VAL;
+    for (unsigned i = 0; i + 1 < d; i++)
+        min_gap = fmin(min_gap, best_p[i] - best_p[i + 1]);
+    if (profile_z > 0 &&
+        (min_gap < 1e-4 || out->fisher_rank < (int)m || !out->covariance_ok))
+        out->profile_ok =
+            ss__lik_profile(&L, mz, x, step, best_p, best, profile_z,
+                            out->profile_lower, out->profile_upper);
 done:
     gsl_multimin_fminimizer_free(mz);
     gsl_vector_free(x);

@@ -156,48 +156,116 @@ static void ss__record(ss__solutions *s, unsigned m1, unsigned m2, unsigned m3,
 }
 
 #define SS__SCAN 512
+/* A residual in P3 below this counts as a solution (P3 is O(0.1); far below
+ * any statistical error of a measured P3). */
+#define SS__ROOT_TOL 1e-10
+
+/* |residual| along one branch at t, or −1 where the branch does not exist. */
+static double ss__abs_residual(const ss__solutions *s, unsigned m1, unsigned m2,
+                               unsigned m3, int sign, double t, double *v1,
+                               double *v2) {
+    if (!ss__branch(s, m1, m2, m3, sign, t, v1, v2))
+        return -1.0;
+    return fabs(ss__residual(s, m1, m2, m3, *v1, *v2, t));
+}
+
+/* A root where the residual touches zero without changing sign (a double
+ * root: two solutions of the pattern merge, as at a tie of two values):
+ * golden-section search for the minimum of |residual| on [a, b]. */
+static void ss__touch_root(ss__solutions *s, unsigned m1, unsigned m2,
+                           unsigned m3, int sign, double a, double b) {
+    const double g = 0.6180339887498949;
+    double v1, v2, x1 = b - g * (b - a), x2 = a + g * (b - a);
+    double f1 = ss__abs_residual(s, m1, m2, m3, sign, x1, &v1, &v2);
+    double f2 = ss__abs_residual(s, m1, m2, m3, sign, x2, &v1, &v2);
+    for (int it = 0; it < 80 && f1 >= 0 && f2 >= 0; it++) {
+        if (f1 < f2) {
+            b = x2;
+            x2 = x1;
+            f2 = f1;
+            x1 = b - g * (b - a);
+            f1 = ss__abs_residual(s, m1, m2, m3, sign, x1, &v1, &v2);
+        } else {
+            a = x1;
+            x1 = x2;
+            f1 = f2;
+            x2 = a + g * (b - a);
+            f2 = ss__abs_residual(s, m1, m2, m3, sign, x2, &v1, &v2);
+        }
+    }
+    double t = 0.5 * (a + b);
+    double f = ss__abs_residual(s, m1, m2, m3, sign, t, &v1, &v2);
+    if (f >= 0 && f < SS__ROOT_TOL)
+        ss__record(s, m1, m2, m3, v1, v2, t);
+}
+
+static void ss__bisect_root(ss__solutions *s, unsigned m1, unsigned m2,
+                            unsigned m3, int sign, double a, double b,
+                            double fa) {
+    double v1, v2;
+    for (int it = 0; it < 80; it++) {
+        double mid = 0.5 * (a + b), fm;
+        if (!ss__branch(s, m1, m2, m3, sign, mid, &v1, &v2))
+            break;
+        fm = ss__residual(s, m1, m2, m3, v1, v2, mid);
+        if ((fm > 0.0) == (fa > 0.0)) {
+            a = mid;
+            fa = fm;
+        } else {
+            b = mid;
+        }
+    }
+    double tm = 0.5 * (a + b);
+    if (ss__branch(s, m1, m2, m3, sign, tm, &v1, &v2) &&
+        fabs(ss__residual(s, m1, m2, m3, v1, v2, tm)) < SS__ROOT_TOL)
+        ss__record(s, m1, m2, m3, v1, v2, tm);
+}
 
 static void ss__scan_pattern(ss__solutions *s, unsigned m1, unsigned m2,
                              unsigned m3) {
     double tmax = 1.0 / m3;
     for (int sign = -1; sign <= 1; sign += 2) {
-        double prev_t = 0.0, prev_f = 0.0;
-        int have_prev = 0;
+        double t_prev[2] = {0, 0}, f_prev[2] = {0, 0};
+        int valid = 0; /* consecutive valid scan points behind this one */
         for (int i = 0; i <= SS__SCAN; i++) {
             double t = tmax * i / SS__SCAN;
             double v1, v2;
             if (!ss__branch(s, m1, m2, m3, sign, t, &v1, &v2)) {
-                have_prev = 0;
+                valid = 0;
                 continue;
             }
             double f = ss__residual(s, m1, m2, m3, v1, v2, t);
-            if (f == 0.0) {
+            if (f == 0.0)
                 ss__record(s, m1, m2, m3, v1, v2, t);
-            } else if (have_prev && (f > 0.0) != (prev_f > 0.0) &&
-                       prev_f != 0.0) {
-                double a = prev_t, b = t, fa = prev_f;
-                for (int it = 0; it < 80; it++) {
-                    double mid = 0.5 * (a + b), fm;
-                    if (!ss__branch(s, m1, m2, m3, sign, mid, &v1, &v2))
-                        break;
-                    fm = ss__residual(s, m1, m2, m3, v1, v2, mid);
-                    if ((fm > 0.0) == (fa > 0.0)) {
-                        a = mid;
-                        fa = fm;
-                    } else {
-                        b = mid;
-                    }
-                }
-                double tm = 0.5 * (a + b);
-                if (ss__branch(s, m1, m2, m3, sign, tm, &v1, &v2) &&
-                    fabs(ss__residual(s, m1, m2, m3, v1, v2, tm)) < 1e-10)
-                    ss__record(s, m1, m2, m3, v1, v2, tm);
-            }
-            prev_t = t;
-            prev_f = f;
-            have_prev = 1;
+            else if (valid >= 1 && f_prev[1] != 0.0 &&
+                     (f > 0.0) != (f_prev[1] > 0.0))
+                ss__bisect_root(s, m1, m2, m3, sign, t_prev[1], t, f_prev[1]);
+            else if (valid >= 2 && fabs(f_prev[1]) < fabs(f_prev[0]) &&
+                     fabs(f_prev[1]) <= fabs(f) &&
+                     (f > 0.0) == (f_prev[1] > 0.0))
+                ss__touch_root(s, m1, m2, m3, sign, t_prev[0], t);
+            t_prev[0] = t_prev[1];
+            f_prev[0] = f_prev[1];
+            t_prev[1] = t;
+            f_prev[1] = f;
+            valid++;
         }
     }
+}
+
+/* Spectra with two distinct non-zero values (v1 ×m1, v2 ×m2, zeros):
+ * P2 fixes them, P3 must then match (the isolated ends of the solution
+ * curve, e.g. (a, a, b, b)). */
+static void ss__two_values(ss__solutions *s) {
+    for (unsigned m1 = 1; m1 <= s->d; m1++)
+        for (unsigned m2 = 1; m1 + m2 <= s->d; m2++)
+            for (int sign = -1; sign <= 1; sign += 2) {
+                double v1, v2;
+                if (ss__branch(s, m1, m2, 0, sign, 0.0, &v1, &v2) &&
+                    fabs(ss__residual(s, m1, m2, 0, v1, v2, 0.0)) <
+                        SS__ROOT_TOL)
+                    ss__record(s, m1, m2, 0, v1, v2, 0.0);
+            }
 }
 
 size_t ss__moment_solutions(unsigned d, double p2, double p3, double *lo,
@@ -211,6 +279,7 @@ size_t ss__moment_solutions(unsigned d, double p2, double p3, double *lo,
         for (unsigned m1 = 1; m1 + m3 < d; m1++)
             for (unsigned m2 = 1; m1 + m2 + m3 <= d; m2++)
                 ss__scan_pattern(&s, m1, m2, m3);
+    ss__two_values(&s);
     if (s.found > 0) {
         memcpy(lo, s.lo, d * sizeof *lo);
         memcpy(hi, s.hi, d * sizeof *hi);
@@ -308,10 +377,87 @@ static double ss__nearest_objective(const gsl_vector *v, void *params) {
     return r0 * r0 * c->W[0] + 2.0 * r0 * r1 * c->W[1] + r1 * r1 * c->W[3];
 }
 
+/* d = 3: the region of (P2, P3) is bounded by three one-parameter families
+ * of spectra, where the map p -> (P2, P3) loses rank: two equal small
+ * eigenvalues (t, (1−t)/2, (1−t)/2), two equal large ones (t, t, 1−2t), and
+ * a zero eigenvalue (t, 1−t, 0).  A point outside is nearest to one of them:
+ * a scan and a golden-section refinement on each. */
+static void ss__family3(int fam, double t, double *p) {
+    if (fam == 0) {
+        p[0] = t;
+        p[1] = p[2] = 0.5 * (1.0 - t);
+    } else if (fam == 1) {
+        p[0] = p[1] = t;
+        p[2] = 1.0 - 2.0 * t;
+    } else {
+        p[0] = t;
+        p[1] = 1.0 - t;
+        p[2] = 0.0;
+    }
+}
+
+static double ss__family3_q(const ss__nearest_ctx *c, int fam, double t) {
+    double p[3];
+    ss__family3(fam, t, p);
+    double r0 = c->theta[0] - ss_spectrum_power_sum(p, 3, 2);
+    double r1 = c->theta[1] - ss_spectrum_power_sum(p, 3, 3);
+    return r0 * r0 * c->W[0] + 2.0 * r0 * r1 * c->W[1] + r1 * r1 * c->W[3];
+}
+
+static double ss__nearest_d3(const ss__nearest_ctx *c, double *p_star) {
+    static const double range[3][2] = {
+        {1.0 / 3.0, 1.0}, {1.0 / 3.0, 0.5}, {0.5, 1.0}};
+    const double g = 0.6180339887498949;
+    double best = HUGE_VAL;
+    for (int fam = 0; fam < 3; fam++) {
+        double lo = range[fam][0], hi = range[fam][1];
+        int n = 200, arg = 0;
+        double bq = HUGE_VAL;
+        for (int i = 0; i <= n; i++) {
+            double q = ss__family3_q(c, fam, lo + (hi - lo) * i / n);
+            if (q < bq) {
+                bq = q;
+                arg = i;
+            }
+        }
+        double a = lo + (hi - lo) * (arg > 0 ? arg - 1 : 0) / n;
+        double b = lo + (hi - lo) * (arg < n ? arg + 1 : n) / n;
+        double x1 = b - g * (b - a), x2 = a + g * (b - a);
+        double f1 = ss__family3_q(c, fam, x1), f2 = ss__family3_q(c, fam, x2);
+        for (int it = 0; it < 60; it++) {
+            if (f1 < f2) {
+                b = x2;
+                x2 = x1;
+                f2 = f1;
+                x1 = b - g * (b - a);
+                f1 = ss__family3_q(c, fam, x1);
+            } else {
+                a = x1;
+                x1 = x2;
+                f1 = f2;
+                x2 = a + g * (b - a);
+                f2 = ss__family3_q(c, fam, x2);
+            }
+        }
+        double t = 0.5 * (a + b), q = ss__family3_q(c, fam, t);
+        if (bq < q) { /* an end point of the family */
+            t = lo + (hi - lo) * arg / n;
+            q = bq;
+        }
+        if (q < best) {
+            best = q;
+            ss__family3(fam, t, p_star);
+        }
+    }
+    return sqrt(fmax(best, 0.0));
+}
+
 double ss__nearest_physical(unsigned d, const double theta[2],
                             const double W[4], int use_p3, double *p_star) {
     ss__nearest_ctx c = {d, use_p3, {theta[0], theta[1]}, {0}};
     memcpy(c.W, W, sizeof c.W);
+    if (d == 3 && use_p3)
+        return ss__nearest_d3(&c, p_star);
     size_t dim = d - 1;
     gsl_multimin_function f = {ss__nearest_objective, dim, &c};
     const gsl_multimin_fminimizer_type *T = gsl_multimin_fminimizer_nmsimplex2;

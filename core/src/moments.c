@@ -164,12 +164,23 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
                 m4 = fmax(rs[r].m4 - 6.0 * m2 * rs[r].tau2 -
                               3.0 * rs[r].tau2 * rs[r].tau2,
                           m2 * m2);
-            } else { /* exact model moments at the current estimate */
+            } else {
+                /* exact model moments at the current estimate, kept as
+                 * skewness and kurtosis; the scale is the larger of the
+                 * model's and the run's own variance, and at least one
+                 * content unit² (readings are integers in content units),
+                 * so an estimate on the boundary (a pure state has no
+                 * spread) cannot make a run look infinitely precise */
                 double mean, c[3];
                 ss__content_moments(rs[r].atoms, p, d, &mean, c);
-                m2 = c[0];
-                m3 = c[1];
-                m4 = c[2];
+                double skew = 0.0, kurt = 3.0; /* Gaussian when c[0] = 0 */
+                if (c[0] > 1e-12) {
+                    skew = c[1] / pow(c[0], 1.5);
+                    kurt = c[2] / (c[0] * c[0]);
+                }
+                m2 = fmax(fmax(c[0], rs[r].s2 - rs[r].tau2), 1.0);
+                m3 = skew * pow(m2, 1.5);
+                m4 = kurt * m2 * m2;
             }
             double cov[3];
             ss__obs_covariance(&rs[r], m2, m3, m4, cov);
@@ -211,8 +222,24 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
     return st;
 }
 
-/* --- parametric bootstrap --------------------------------------------------
- */
+/* --- parametric bootstrap ------------------------------------------------ */
+
+static int ss__cmp_double(const void *a, const void *b) {
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Quantile of sorted x[0..n-1] by linear interpolation (Hyndman & Fan type
+ * 7, the default of common statistics packages). */
+static double ss__quantile(const double *x, size_t n, double q) {
+    if (n == 1)
+        return x[0];
+    double h = q * (double)(n - 1);
+    size_t lo = (size_t)h;
+    if (lo + 1 >= n)
+        return x[n - 1];
+    return x[lo] + (h - (double)lo) * (x[lo + 1] - x[lo]);
+}
 
 /* One replicate of a run, drawn exactly but without drawing every shot: the
  * counts per content level are multinomial; with Gaussian noise η the sums
@@ -248,18 +275,20 @@ static void ss__replicate_run(gsl_rng *rng, size_t nlev, const double *prob,
 ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
                                 const double *p_hat, const ss__fit *fit,
                                 unsigned replicates, uint64_t seed,
-                                const ss_budget *budget, double *sd_spectrum,
-                                double *sd_p2, ss_error *err) {
+                                const ss_budget *budget, double confidence,
+                                double *sd_spectrum, double *sd_p2,
+                                double *q_lo, double *q_hi, ss_error *err) {
     ss_status st = SS_OK;
     ss_levels **lv = calloc(R, sizeof *lv);
     double(*y)[2] = malloc(R * sizeof *y);
     double(*W)[3] = malloc(R * sizeof *W);
     unsigned *cnt = NULL;
     size_t maxlev = 1;
+    double *reps = malloc((size_t)replicates * d * sizeof *reps);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     long double sum[SS_LEVELS_MAX] = {0}, sq[SS_LEVELS_MAX] = {0};
     long double s2sum = 0, s2sq = 0;
-    if (lv == NULL || y == NULL || W == NULL || rng == NULL) {
+    if (lv == NULL || y == NULL || W == NULL || rng == NULL || reps == NULL) {
         st = ss_error_set(err, SS_ENOMEM, "", NULL);
         goto done;
     }
@@ -294,6 +323,7 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
         for (unsigned i = 0; i < d; i++) {
             sum[i] += p[i];
             sq[i] += (long double)p[i] * p[i];
+            reps[(size_t)i * replicates + b] = p[i];
         }
         s2sum += theta[0];
         s2sq += (long double)theta[0] * theta[0];
@@ -303,6 +333,15 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
         long double m = sum[i] / nb;
         sd_spectrum[i] = (double)sqrtl(fmaxl(sq[i] / nb - m * m, 0.0L) * corr);
     }
+    /* percentile intervals (Efron & Tibshirani, An Introduction to the
+     * Bootstrap, ch. 13 [from memory]) */
+    double alpha = 1.0 - confidence;
+    for (unsigned i = 0; i < d; i++) {
+        double *col = reps + (size_t)i * replicates;
+        qsort(col, replicates, sizeof *col, ss__cmp_double);
+        q_lo[i] = ss__quantile(col, replicates, 0.5 * alpha);
+        q_hi[i] = ss__quantile(col, replicates, 1.0 - 0.5 * alpha);
+    }
     long double m2 = s2sum / nb;
     *sd_p2 = (double)sqrtl(fmaxl(s2sq / nb - m2 * m2, 0.0L) * corr);
 done:
@@ -310,6 +349,7 @@ done:
         ss_levels_free(lv[r]);
     free(lv);
     free(cnt);
+    free(reps);
     free(y);
     free(W);
     gsl_rng_free(rng);

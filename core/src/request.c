@@ -32,6 +32,16 @@ ss_status ss_method_parse(const char *name, ss_method *out) {
     return SS_EINVAL;
 }
 
+static const char *const ss__interval_names[] = {
+    "delta-method", "bootstrap-percentile", "confidence-region",
+    "profile-likelihood"};
+
+const char *ss_interval_name(ss_interval_kind k) {
+    if ((unsigned)k > SS_INTERVAL_PROFILE)
+        return "unknown";
+    return ss__interval_names[k];
+}
+
 static const char *const ss__flag_names[] = {
 #define SS_X_FLAGNAME(e, name) name,
     SS_FLAG_MAP(SS_X_FLAGNAME)
