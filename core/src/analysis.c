@@ -114,8 +114,8 @@ static void ss__region_ranges(ss_analysis *a, const double *theta,
  * points of the ellipse (θ − θ̂)ᵀΣ⁻¹(θ − θ̂) <= z² (z the normal quantile:
  * one degree of freedom per eigenvalue).  It follows the curved root map
  * instead of linearising it, which is what fails near equal eigenvalues.
- * The physical part of the ellipse is sampled on rings and along the three
- * boundary families of the region (ties and a zero eigenvalue).  Returns 0
+ * The physical part of the ellipse is sampled on its rim and along the
+ * three boundary families of the region (ties and a zero eigenvalue).  Returns 0
  * when no sampled point is physical. */
 static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
     double l11 = sqrt(fit->cov[0]);
@@ -126,24 +126,25 @@ static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
         return 0;
     double lo[3] = {1, 1, 1}, hi[3] = {0, 0, 0};
     int found = 0;
-    for (int ring = 1; ring <= 8; ring++)
-        for (int k = 0; k < 64; k++) {
-            double ang = 2 * 3.14159265358979323846 * k / 64;
-            double u = cos(ang) * zc * ring / 8, v = sin(ang) * zc * ring / 8;
-            double p[3];
-            if (!ss__spectrum_from_moments(3, fit->theta[0] + l11 * u,
-                                           fit->theta[1] + l21 * u + l22 * v,
-                                           p))
-                continue;
-            for (int i = 0; i < 3; i++) {
-                lo[i] = fmin(lo[i], p[i]);
-                hi[i] = fmax(hi[i], p[i]);
-            }
-            found = 1;
+    /* p(θ) has no critical point inside the region (its Jacobian is
+     * singular only on the region's boundary), so the extremes over the
+     * ellipse ∩ region lie on the ellipse or on the region's boundary */
+    for (int k = 0; k < 96; k++) {
+        double ang = 2 * 3.14159265358979323846 * k / 96;
+        double u = cos(ang) * zc, v = sin(ang) * zc;
+        double p[3];
+        if (!ss__spectrum_from_moments(3, fit->theta[0] + l11 * u,
+                                       fit->theta[1] + l21 * u + l22 * v, p))
+            continue;
+        for (int i = 0; i < 3; i++) {
+            lo[i] = fmin(lo[i], p[i]);
+            hi[i] = fmax(hi[i], p[i]);
         }
+        found = 1;
+    }
     for (int fam = 0; fam < 3; fam++)
-        for (int k = 0; k <= 400; k++) {
-            double t = k / 400.0, p[3];
+        for (int k = 0; k <= 240; k++) {
+            double t = k / 240.0, p[3];
             if (fam == 0) { /* (t, (1−t)/2, (1−t)/2), t in [1/3, 1] */
                 p[0] = 1.0 / 3 + t * 2.0 / 3;
                 p[1] = p[2] = 0.5 * (1 - p[0]);
