@@ -3,16 +3,19 @@
 #
 # Installs the build dependencies that are missing (as root; `apt-get
 # update` only when something is missing), builds the `swapspec` executable
-# in build/, and predicts the energy readout of 24 atoms with spectrum
-# (0.6, 0.3, 0.1) under the sample calibration of the invented
-# Quillfeather lab's box trap A (samples/calibration-boxtrap-a.json).
-# Progress goes to stderr; the result, one JSON object, to stdout.
-# (A later version starts the HTTP service here instead.)
+# in build/, and starts the HTTP service on its embedded default: loopback
+# only (127.0.0.1:8080, no tokens needed there) with the SQLite store
+# ./var/swapspec.db.  Once it answers, the sample analysis of the invented
+# Quillfeather lab (samples/analysis-request.json) is posted to it, and the
+# stored record is printed on stdout.  The service keeps running in the
+# foreground until Ctrl-C (SIGINT) or SIGTERM, which it handles by finishing
+# the requests in flight.  SWAPSPEC_LISTEN / SWAPSPEC_DATA override the
+# address and the store.
 set -euo pipefail
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
 
 PACKAGES=(build-essential cmake pkg-config libgsl-dev libjansson-dev
-          libmicrohttpd-dev libsqlite3-dev)
+          libmicrohttpd-dev libgnutls28-dev libsqlite3-dev curl)
 
 missing=()
 for pkg in "${PACKAGES[@]}"; do
@@ -36,6 +39,21 @@ echo "run-demo: building swapspec in build/" >&2
 cmake -S . -B build >&2
 cmake --build build -j "${JOBS:-2}" --target swapspec >&2
 
-echo "run-demo: swapspec predict --levels 3 --atoms 24 --spectrum 0.6,0.3,0.1 --calibration samples/calibration-boxtrap-a.json" >&2
-./build/swapspec predict --levels 3 --atoms 24 --spectrum 0.6,0.3,0.1 \
-    --calibration samples/calibration-boxtrap-a.json
+listen=${SWAPSPEC_LISTEN:-127.0.0.1:8080}
+data=${SWAPSPEC_DATA:-./var/swapspec.db}
+echo "run-demo: starting swapspec serve --listen $listen --data $data" >&2
+./build/swapspec serve --listen "$listen" --data "$data" &
+pid=$!
+trap 'kill -TERM "$pid" 2>/dev/null || true; wait "$pid"' INT TERM
+for _ in $(seq 1 50); do
+    curl -sf "http://$listen/healthz" >/dev/null 2>&1 && break
+    sleep 0.1
+done
+echo "run-demo: posting samples/analysis-request.json to /v1/analyses" >&2
+curl -sf -X POST -H 'Content-Type: application/json' \
+    -H 'Idempotency-Key: "demo-quillfeather-boxtrap-a"' \
+    --data-binary @samples/analysis-request.json \
+    "http://$listen/v1/analyses" || echo "run-demo: the post failed" >&2
+echo >&2
+echo "run-demo: serving on http://$listen (Ctrl-C stops it)" >&2
+wait "$pid"

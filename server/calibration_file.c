@@ -101,7 +101,7 @@ static ss_status cal_read_object(const char *path, const json_t *obj,
             continue;
         }
         if (strcmp(key, "unit") != 0)
-            return ss_error_set(err, SS_EMALFORMED, field,
+            return ss_error_set(err, SS_EINVAL, field,
                                 "%s has an unknown key '%s' (known: offset, "
                                 "pair_shift, exchange, noise_sd, unit)",
                                 path, key);
@@ -175,4 +175,15 @@ ss_status cli_calibration_load(const char *path, ss_calibration *out,
         st = cli_calibration_from_object(root, where, out, err);
     json_decref(root);
     return st;
+}
+
+ss_status cli_calibration_resolve(const json_t *inline_obj, const char *path,
+                                  ss_calibration *out, const char **source,
+                                  ss_error *err) {
+    if (inline_obj != NULL) {
+        *source = "request";
+        return cli_calibration_from_object(inline_obj, "request", out, err);
+    }
+    *source = path ? path : "default";
+    return cli_calibration_load(path, out, err);
 }

@@ -25,4 +25,12 @@ ss_status cli_calibration_load(const char *path, ss_calibration *out,
 ss_status cli_calibration_from_object(const json_t *obj, const char *where,
                                       ss_calibration *out, ss_error *err);
 
+/* The calibration of a command: the inline object of a JSON body when
+ * there is one (source "request"), else the file of option `path` (source
+ * the file name), else the default (source "default").  *source points to
+ * static text or into path. */
+ss_status cli_calibration_resolve(const json_t *inline_obj, const char *path,
+                                  ss_calibration *out, const char **source,
+                                  ss_error *err);
+
 #endif /* SWAPSPEC_CALIBRATION_FILE_H */

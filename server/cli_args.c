@@ -220,7 +220,7 @@ static ss_status cli_parse_word(const cli_command *cmd, int argc, char **argv,
 
 ss_status cli_args_parse(const cli_command *cmd, int argc, char **argv,
                          cli_parsed *out, ss_error *err) {
-    cli_parsed parsed = {cmd, NULL, 0, NULL};
+    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL};
     for (int i = 0; i < argc; i++)
         if (cli_is_help(argv[i]))
             parsed.help = 1;
@@ -263,13 +263,141 @@ ss_status cli_args_parse(const cli_command *cmd, int argc, char **argv,
 }
 
 void cli_args_free(cli_parsed *parsed) {
-    if (parsed == NULL || parsed->values == NULL)
+    if (parsed == NULL)
+        return;
+    json_decref(parsed->calibration);
+    parsed->calibration = NULL;
+    if (parsed->values == NULL)
         return;
     for (size_t k = 0; parsed->command && k < parsed->command->option_count;
-         k++)
+         k++) {
         free(parsed->values[k].list);
+        free(parsed->values[k].owned);
+    }
     free(parsed->values);
     parsed->values = NULL;
+}
+
+/* The text form of a JSON value for cli_parse_value: a number as written
+ * with 17 significant digits, an array of numbers joined by commas.  NULL
+ * with err set when the type does not fit the option. */
+static char *cli_json_text(const cli_option *opt, const char *key,
+                           const json_t *v, ss_error *err) {
+    char buf[64];
+    if (opt->kind == CLI_LIST) {
+        if (!json_is_array(v)) {
+            ss_error_set(err, SS_EINVAL, key, "must be an array of numbers");
+            return NULL;
+        }
+        size_t n = json_array_size(v), cap = n * 32 + 1;
+        char *text = malloc(cap), *end = text;
+        if (text == NULL) {
+            ss_error_set(err, SS_ENOMEM, key, "no memory");
+            return NULL;
+        }
+        *end = '\0';
+        for (size_t i = 0; i < n; i++) {
+            const json_t *x = json_array_get(v, i);
+            if (!json_is_number(x)) {
+                char field[96];
+                snprintf(field, sizeof field, "%s[%zu]", key, i);
+                ss_error_set(err, SS_EINVAL, field, "must be a number");
+                free(text);
+                return NULL;
+            }
+            end += snprintf(end, cap - (size_t)(end - text), "%s%.17g",
+                            i ? "," : "", json_number_value(x));
+        }
+        return text;
+    }
+    if (opt->kind == CLI_PATH) {
+        if (!json_is_string(v)) {
+            ss_error_set(err, SS_EINVAL, key, "must be a string");
+            return NULL;
+        }
+        return strdup(json_string_value(v));
+    }
+    if (!json_is_number(v)) {
+        ss_error_set(err, SS_EINVAL, key, "must be a number");
+        return NULL;
+    }
+    if (json_is_integer(v))
+        snprintf(buf, sizeof buf, "%" JSON_INTEGER_FORMAT,
+                 json_integer_value(v));
+    else
+        snprintf(buf, sizeof buf, "%.17g", json_real_value(v));
+    char *text = strdup(buf);
+    if (text == NULL)
+        ss_error_set(err, SS_ENOMEM, key, "no memory");
+    return text;
+}
+
+ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
+                             cli_parsed *out, ss_error *err) {
+    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL};
+    if (!json_is_object(body))
+        return ss_error_set(err, SS_EMALFORMED, "",
+                            "the request body must be a JSON object");
+    parsed.values = calloc(cmd->option_count + 1, sizeof *parsed.values);
+    if (parsed.values == NULL)
+        return ss_error_set(err, SS_ENOMEM, "", "no memory for options");
+    const char *key;
+    json_t *v;
+    json_object_foreach((json_t *)body, key, v) {
+        char name[64];
+        snprintf(name, sizeof name, "%s", key);
+        for (char *c = name; *c; c++)
+            if (*c == '_')
+                *c = '-';
+        size_t k = 0;
+        const cli_option *opt = cli_find_option(cmd, name, strlen(name), &k);
+        if (opt == NULL || strchr(key, '-') != NULL) {
+            cli_args_free(&parsed);
+            return ss_error_set(err, SS_EINVAL, key, "unknown field '%.60s'",
+                                key);
+        }
+        if (strcmp(opt->name, "calibration") == 0) {
+            if (!json_is_object(v)) {
+                cli_args_free(&parsed);
+                return ss_error_set(err, SS_EINVAL, "calibration",
+                                    "must be an object {offset, pair_shift, "
+                                    "exchange, noise_sd, unit}");
+            }
+            parsed.calibration = json_incref(v);
+            continue;
+        }
+        char *text = cli_json_text(opt, key, v, err);
+        if (text == NULL) {
+            cli_args_free(&parsed);
+            return err->code;
+        }
+        parsed.values[k].present = 1;
+        parsed.values[k].owned = text;
+        parsed.values[k].text = text;
+        ss_status st = cli_parse_value(opt, text, &parsed.values[k], err);
+        if (st == SS_EMALFORMED) {
+            /* well-formed JSON with a value of the wrong kind (3.5 where a
+             * whole number belongs): a content error, worded for JSON */
+            err->code = st = SS_EINVAL;
+            if (strncmp(err->message, "--", 2) == 0)
+                memmove(err->message, err->message + 2,
+                        strlen(err->message + 2) + 1);
+        }
+        if (st != SS_OK) {
+            cli_args_free(&parsed);
+            return st;
+        }
+    }
+    for (size_t k = 0; k < cmd->option_count; k++) {
+        const cli_option *opt = &cmd->options[k];
+        if (opt->required && !parsed.values[k].present) {
+            cli_args_free(&parsed);
+            return ss_error_set(err, SS_EINVAL, opt->name,
+                                "missing required field '%s'", opt->name);
+        }
+    }
+    *out = parsed;
+    return SS_OK;
 }
 
 void cli_args_print_wrapped(FILE *out, const char *text, int first_column,

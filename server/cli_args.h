@@ -44,7 +44,8 @@ typedef struct {
     double r;        /* CLI_REAL */
     double *list;    /* CLI_LIST, list_len entries, owned */
     size_t list_len;
-    const char *text; /* the raw value (points into argv) */
+    const char *text; /* the raw value (points into argv, or into owned) */
+    char *owned;      /* the value's text when it came from a JSON body */
 } cli_value;
 
 typedef struct cli_command cli_command;
@@ -56,6 +57,8 @@ typedef struct {
     cli_value *values;
     int help;
     const char *positional; /* the one positional word, when allowed */
+    json_t *calibration;    /* inline calibration object of a JSON body
+                               (a reference held until cli_args_free) */
 } cli_parsed;
 
 /* A subcommand: its options, and the function that computes its JSON
@@ -108,6 +111,15 @@ struct cli_command {
  * required-option check. */
 ss_status cli_args_parse(const cli_command *cmd, int argc, char **argv,
                          cli_parsed *out, ss_error *err);
+
+/* The same options from a JSON object (the HTTP service's request body):
+ * each key is an option name with '-' written as '_' ("energy_sd"); numbers
+ * for CLI_UINT/CLI_INT/CLI_REAL, an array of numbers for CLI_LIST, and for
+ * the option "calibration" an inline calibration object.  Values go through
+ * the same checks as on the command line; unknown keys and wrong types are
+ * SS_EINVAL naming the key.  Release with cli_args_free. */
+ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
+                             cli_parsed *out, ss_error *err);
 
 /* Releases what cli_args_parse allocated; accepts a zeroed struct. */
 void cli_args_free(cli_parsed *parsed);

@@ -172,9 +172,11 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
     const cli_value *v = args->values;
     const char *cal_path =
         v[OPT_CALIBRATION].present ? v[OPT_CALIBRATION].text : NULL;
+    const char *cal_source = "default";
     ss_calibration cal = ss_calibration_default();
     diagrams_filter filter = {SELECT_ALL, 0, 0.0, 0.0, 0.0};
-    if (cli_calibration_load(cal_path, &cal, err) != SS_OK ||
+    if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
+                                err) != SS_OK ||
         diagrams_filter_init(v, &cal, &filter, err) != SS_OK)
         return err->code;
     ss_diagram_set *set = NULL;
@@ -193,10 +195,8 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
     }
     if (err->code == SS_OK) {
         diagrams_render(doc, set, groups, &filter, &cal, keep, err);
-        cli_json_put(
-            doc, "calibration",
-            cli_json_calibration(&cal, cal_path ? cal_path : "default", err),
-            err);
+        cli_json_put(doc, "calibration",
+                     cli_json_calibration(&cal, cal_source, err), err);
     }
     free(keep);
     ss_levels_free(groups);

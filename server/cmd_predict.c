@@ -151,8 +151,10 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
     const cli_value *v = args->values;
     const char *cal_path =
         v[OPT_CALIBRATION].present ? v[OPT_CALIBRATION].text : NULL;
+    const char *cal_source = "default";
     ss_calibration cal = ss_calibration_default();
-    if (cli_calibration_load(cal_path, &cal, err) != SS_OK)
+    if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
+                                err) != SS_OK)
         return err->code;
 
     predict_view pv = {(unsigned)v[OPT_ATOMS].u,
@@ -181,7 +183,7 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
         pv.groups = groups;
         size_t top =
             v[OPT_TOP].present ? (size_t)v[OPT_TOP].u : PREDICT_DEFAULT_TOP;
-        predict_render(doc, &pv, top, cal_path ? cal_path : "default", err);
+        predict_render(doc, &pv, top, cal_source, err);
     }
     ss_levels_free(groups);
     free(order);

@@ -103,13 +103,15 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
     const cli_value *v = args->values;
     const char *cal_path =
         v[OPT_CALIBRATION].present ? v[OPT_CALIBRATION].text : NULL;
+    const char *cal_source = "default";
     unsigned levels = (unsigned)v[OPT_LEVELS].u;
     unsigned atoms = (unsigned)v[OPT_ATOMS].u;
     size_t shots = (size_t)v[OPT_SHOTS].u;
     unsigned long seed = v[OPT_SEED].present ? v[OPT_SEED].u : 1UL;
     double sorted[SS_LEVELS_MAX];
     ss_calibration cal = ss_calibration_default();
-    if (cli_calibration_load(cal_path, &cal, err) != SS_OK ||
+    if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
+                                err) != SS_OK ||
         simulate_check(v, sorted, err) != SS_OK)
         return err->code;
     ss_sampler *sampler = NULL;
@@ -130,10 +132,8 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
         cli_json_put(doc, "spectrum",
                      cli_json_reals(sorted, levels, "spectrum", err), err);
         cli_json_put_int(doc, "seed", (int64_t)seed, err);
-        cli_json_put(
-            doc, "calibration",
-            cli_json_calibration(&cal, cal_path ? cal_path : "default", err),
-            err);
+        cli_json_put(doc, "calibration",
+                     cli_json_calibration(&cal, cal_source, err), err);
         cli_json_put(doc, "energies",
                      cli_json_reals(energies, shots, "energies", err), err);
         cli_json_put(doc, "diagrams", diagrams, err);

@@ -14,5 +14,7 @@ extern const cli_command cli_cmd_predict;
 extern const cli_command cli_cmd_diagrams;
 extern const cli_command cli_cmd_simulate;
 extern const cli_command cli_cmd_analyze;
+extern const cli_command cli_cmd_serve;
+extern const cli_command cli_cmd_routes;
 
 #endif /* SWAPSPEC_COMMANDS_H */

@@ -21,16 +21,10 @@
 #endif
 
 static const cli_command *const main_commands[] = {
-    &cli_cmd_predict,
-    &cli_cmd_diagrams,
-    &cli_cmd_simulate,
-    &cli_cmd_analyze,
+    &cli_cmd_predict, &cli_cmd_diagrams, &cli_cmd_simulate,
+    &cli_cmd_analyze, &cli_cmd_serve,    &cli_cmd_routes,
 };
 #define MAIN_COMMAND_COUNT (sizeof main_commands / sizeof main_commands[0])
-
-/* Names taken by later versions; they fail with a clear message today. */
-static const char *const main_reserved[] = {"serve"};
-#define MAIN_RESERVED_COUNT (sizeof main_reserved / sizeof main_reserved[0])
 
 static void main_usage(FILE *out) {
     fprintf(out,
@@ -43,7 +37,6 @@ static void main_usage(FILE *out) {
     for (size_t k = 0; k < MAIN_COMMAND_COUNT; k++)
         fprintf(out, "  %-10s %s\n", main_commands[k]->name,
                 main_commands[k]->brief);
-    fprintf(out, "  %-10s %s\n", "serve", "(reserved: not yet available)");
     fprintf(out, "\nResults are one JSON object on stdout.  Errors are one "
                  "JSON object\n{\"error\", \"field\", \"code\"} on "
                  "stderr, with exit code 2 (bad input)\nor 1 (internal "
@@ -64,7 +57,7 @@ static int main_run(const cli_command *cmd, int argc, char **argv) {
     json_t *doc = NULL;
     ss_status st = cmd->run(&args, &doc, &err);
     cli_args_free(&args);
-    if (st == SS_OK)
+    if (st == SS_OK && doc != NULL)
         st = cli_json_emit(doc, stdout, &err);
     json_decref(doc);
     return st == SS_OK ? 0 : cli_json_report_error(&err, stderr);
@@ -91,17 +84,8 @@ int main(int argc, char **argv) {
     for (size_t k = 0; k < MAIN_COMMAND_COUNT; k++)
         if (strcmp(name, main_commands[k]->name) == 0)
             return main_run(main_commands[k], argc - 2, argv + 2);
-    for (size_t k = 0; k < MAIN_RESERVED_COUNT; k++)
-        if (strcmp(name, main_reserved[k]) == 0) {
-            ss_error_set(&err, SS_ENOTFOUND, "command",
-                         "the '%s' command is not yet available in swapspec "
-                         "%s",
-                         name, SWAPSPEC_VERSION);
-            return cli_json_report_error(&err, stderr);
-        }
     ss_error_set(&err, SS_EMALFORMED, "command",
-                 "unknown command '%s'; commands are predict, diagrams and "
-                 "simulate (see swapspec --help)",
+                 "unknown command '%s' (see swapspec --help for the list)",
                  name);
     return cli_json_report_error(&err, stderr);
 }

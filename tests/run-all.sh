@@ -16,7 +16,8 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 
 JOBS="${JOBS:-2}"
 PACKAGES=(build-essential cmake pkg-config libgsl-dev libjansson-dev
-          libcriterion-dev libmicrohttpd-dev libsqlite3-dev clang-format)
+          libcriterion-dev libmicrohttpd-dev libgnutls28-dev libsqlite3-dev
+          clang-format curl nodejs)
 
 install_missing() {
     local missing=() pkg

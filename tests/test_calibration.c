@@ -239,6 +239,18 @@ Test(calibration, status_table) {
         {SS_EMALFORMED, 400, "malformed-input"},
         {SS_ENOTFOUND, 404, "not-found"},
         {SS_EINTERNAL, 500, "internal-error"},
+        {SS_EUNAUTHORIZED, 401, "unauthorized"},
+        {SS_EFORBIDDEN, 403, "forbidden"},
+        {SS_EMETHOD, 405, "method-not-allowed"},
+        {SS_ECONFLICT, 409, "conflict"},
+        {SS_ETOOLARGE, 413, "content-too-large"},
+        {SS_EMEDIATYPE, 415, "unsupported-media-type"},
+        {SS_EIDEMPOTENCY, 422, "idempotency-key-reused"},
+        {SS_EBUSY, 503, "store-busy"},
+        {SS_ESTORE, 503, "store-unavailable"},
+        {SS_ESTOREFULL, 507, "insufficient-storage"},
+        {SS_EUNAVAILABLE, 503, "unavailable"},
+        {SS_EDEADLINE, 503, "deadline-exceeded"},
     };
     cr_assert(TU_COUNT_OF(rows) == SS_STATUS_COUNT, "status table has %d rows",
               SS_STATUS_COUNT);

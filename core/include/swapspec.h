@@ -44,7 +44,31 @@ extern "C" {
     X(SS_ENOMEM, "out-of-memory", 503, "memory could not be allocated")        \
     X(SS_EMALFORMED, "malformed-input", 400, "the input could not be parsed")  \
     X(SS_ENOTFOUND, "not-found", 404, "no such resource")                      \
-    X(SS_EINTERNAL, "internal-error", 500, "an internal computation failed")
+    X(SS_EINTERNAL, "internal-error", 500, "an internal computation failed")   \
+    X(SS_EUNAUTHORIZED, "unauthorized", 401,                                   \
+      "a valid bearer token is required")                                      \
+    X(SS_EFORBIDDEN, "forbidden", 403,                                         \
+      "the token's role does not allow this request")                          \
+    X(SS_EMETHOD, "method-not-allowed", 405,                                   \
+      "the route does not support this method")                                \
+    X(SS_ECONFLICT, "conflict", 409,                                           \
+      "a request with this Idempotency-Key is still being processed")          \
+    X(SS_ETOOLARGE, "content-too-large", 413,                                  \
+      "the request body exceeds the size limit")                               \
+    X(SS_EMEDIATYPE, "unsupported-media-type", 415,                            \
+      "the request body must be application/json")                             \
+    X(SS_EIDEMPOTENCY, "idempotency-key-reused", 422,                          \
+      "this Idempotency-Key was used with a different request body")           \
+    X(SS_EBUSY, "store-busy", 503,                                             \
+      "the store is busy; retry after the indicated delay")                    \
+    X(SS_ESTORE, "store-unavailable", 503,                                     \
+      "the store could not complete the operation")                            \
+    X(SS_ESTOREFULL, "insufficient-storage", 507,                              \
+      "the store has no space left")                                           \
+    X(SS_EUNAVAILABLE, "unavailable", 503,                                     \
+      "the service is shutting down or overloaded")                            \
+    X(SS_EDEADLINE, "deadline-exceeded", 503,                                  \
+      "the computation did not finish within the request deadline")
 
 typedef enum {
 #define SS_X_ENUM(e, name, http, msg) e,

@@ -115,8 +115,8 @@ static void ss__region_ranges(ss_analysis *a, const double *theta,
  * one degree of freedom per eigenvalue).  It follows the curved root map
  * instead of linearising it, which is what fails near equal eigenvalues.
  * The physical part of the ellipse is sampled on its rim and along the
- * three boundary families of the region (ties and a zero eigenvalue).  Returns 0
- * when no sampled point is physical. */
+ * three boundary families of the region (ties and a zero eigenvalue).  Returns
+ * 0 when no sampled point is physical. */
 static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
     double l11 = sqrt(fit->cov[0]);
     double l21 = fit->cov[1] / l11;

@@ -1,0 +1,252 @@
+/*
+ * handlers_analyses.c — POST /v1/analyses (run the inversion, store request
+ * and result, answer 201 with a Location; Idempotency-Key makes retries
+ * safe), GET /v1/analyses/{id}, and GET /v1/analyses (filters and keyset
+ * pagination, newest first).  The analysis itself is the core's
+ * ss_analysis_run on the request decoded by api_request.c and rendered by
+ * api_render.c, exactly as `swapspec analyze` does.  Owns nothing beyond
+ * the request.
+ */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "api_render.h"
+#include "api_request.h"
+#include "http.h"
+
+#ifndef SWAPSPEC_VERSION
+#define SWAPSPEC_VERSION "unknown"
+#endif
+
+/* {"id","created_at","label","request","result","software_version"} from a
+ * stored record. */
+static json_t *analysis_record_doc(const store_record *r, ss_error *err) {
+    json_error_t jerr;
+    json_t *request =
+        r->request_json ? json_loads(r->request_json, 0, &jerr) : json_null();
+    json_t *result =
+        r->result_json ? json_loads(r->result_json, 0, &jerr) : json_null();
+    if (request == NULL || result == NULL) {
+        json_decref(request);
+        json_decref(result);
+        ss_error_set(err, SS_ESTORE, "",
+                     "the stored record %s cannot be read back", r->id);
+        return NULL;
+    }
+    return json_pack("{s:s,s:s,s:s,s:o,s:o,s:s}", "id", r->id, "created_at",
+                     r->created_at, "label", r->label, "request", request,
+                     "result", result, "software_version", r->software_version);
+}
+
+static ss_status analysis_replay(http_ctx *ctx, store_conn *c, const char *id,
+                                 ss_error *err) {
+    store_record rec;
+    memset(&rec, 0, sizeof rec);
+    ss_status st = store_get(c, id, &rec, err);
+    if (st == SS_OK) {
+        ctx->doc = analysis_record_doc(&rec, err);
+        st = ctx->doc ? SS_OK : err->code;
+    }
+    store_record_release(&rec);
+    if (st == SS_OK) {
+        ctx->status = 200;
+        ctx->replayed = 1;
+        snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s", id);
+    }
+    return st;
+}
+
+/* The Idempotency-Key header: a structured-field string (quotes stripped)
+ * of 1..128 visible ASCII characters.  0 when absent; −1 when malformed. */
+static int analysis_idem_key(http_ctx *ctx, char *key, size_t cap) {
+    const char *raw = http_header(ctx, "Idempotency-Key");
+    if (raw == NULL)
+        return 0;
+    size_t n = strlen(raw);
+    if (n >= 2 && raw[0] == '"' && raw[n - 1] == '"') {
+        raw++;
+        n -= 2;
+    }
+    if (n == 0 || n > STORE_IDEMPOTENCY_KEY_MAX || n >= cap)
+        return -1;
+    for (size_t i = 0; i < n; i++)
+        if (raw[i] < 0x21 || raw[i] > 0x7e || raw[i] == '"')
+            return -1;
+    memcpy(key, raw, n);
+    key[n] = '\0';
+    return 1;
+}
+
+/* Runs and stores a new analysis (no idempotency decision here). */
+static ss_status analysis_compute(http_ctx *ctx, store_conn *c, const char *key,
+                                  const char *fingerprint, ss_error *err) {
+    api_request req;
+    ss_status st = api_request_from_json(ctx->json, &req, err);
+    if (st != SS_OK)
+        return st;
+    ss_analysis *a = NULL;
+    json_t *result = NULL;
+    store_record rec;
+    memset(&rec, 0, sizeof rec);
+    st = ss_analysis_run(&req.req, &a, err);
+    if (st == SS_OK) {
+        result = api_render_analysis(a, &req.req.calibration, err);
+        if (result == NULL)
+            st = err->code;
+        else if (req.label[0])
+            json_object_set_new(result, "label", json_string(req.label));
+    }
+    if (st == SS_OK)
+        st = store_id_generate(rec.id, err);
+    if (st == SS_OK) {
+        store_time_now(rec.created_at);
+        snprintf(rec.label, sizeof rec.label, "%s", req.label);
+        rec.levels = req.req.levels;
+        snprintf(rec.method, sizeof rec.method, "%s",
+                 ss_method_name(a->method));
+        snprintf(rec.software_version, sizeof rec.software_version, "%s",
+                 SWAPSPEC_VERSION);
+        rec.request_json = json_dumps(ctx->json, JSON_COMPACT);
+        rec.result_json =
+            json_dumps(result, JSON_COMPACT | JSON_REAL_PRECISION(17));
+        if (rec.request_json == NULL || rec.result_json == NULL)
+            st = ss_error_set(err, SS_ENOMEM, "", NULL);
+    }
+    if (st == SS_OK)
+        st = store_put(c, &rec, key, fingerprint, err);
+    if (st == SS_OK) {
+        ctx->doc = json_pack("{s:s,s:s,s:s,s:O,s:O,s:s}", "id", rec.id,
+                             "created_at", rec.created_at, "label", rec.label,
+                             "request", ctx->json, "result", result,
+                             "software_version", rec.software_version);
+        if (ctx->doc == NULL)
+            st = ss_error_set(err, SS_ENOMEM, "", NULL);
+        ctx->status = 201;
+        snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s",
+                 rec.id);
+    }
+    free(rec.request_json);
+    free(rec.result_json);
+    json_decref(result);
+    ss_analysis_free(a);
+    api_request_release(&req);
+    return st;
+}
+
+ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
+    char key[STORE_IDEMPOTENCY_KEY_MAX + 1], fp[65];
+    int has_key = analysis_idem_key(ctx, key, sizeof key);
+    if (has_key < 0)
+        return ss_error_set(err, SS_EMALFORMED, "Idempotency-Key",
+                            "the Idempotency-Key header must be 1 to %u "
+                            "visible ASCII characters (optionally quoted)",
+                            STORE_IDEMPOTENCY_KEY_MAX);
+    store_conn *c = http_store_conn(ctx->app, err);
+    if (c == NULL)
+        return err->code;
+    auth_sha256_hex(ctx->body, ctx->body_len, fp);
+    if (!has_key)
+        return analysis_compute(ctx, c, NULL, NULL, err);
+    if (!http_inflight_take(ctx->app, key))
+        return ss_error_set(err, SS_ECONFLICT, "Idempotency-Key",
+                            "a request with this Idempotency-Key is still "
+                            "being processed; retry when it has finished");
+    int found = 0;
+    char stored_fp[65], stored_id[32];
+    ss_status st =
+        store_idempotency_find(c, key, stored_fp, stored_id, &found, err);
+    if (st == SS_OK && found && strcmp(stored_fp, fp) != 0)
+        st = ss_error_set(err, SS_EIDEMPOTENCY, "Idempotency-Key",
+                          "this Idempotency-Key was first used with a "
+                          "different request body; use a new key for a new "
+                          "request");
+    else if (st == SS_OK && found)
+        st = analysis_replay(ctx, c, stored_id, err);
+    else if (st == SS_OK) {
+        st = analysis_compute(ctx, c, key, fp, err);
+        if (st == SS_ECONFLICT) { /* stored meanwhile by another process */
+            ss_error_clear(err);
+            st = store_idempotency_find(c, key, stored_fp, stored_id, &found,
+                                        err);
+            if (st == SS_OK && found && strcmp(stored_fp, fp) == 0)
+                st = analysis_replay(ctx, c, stored_id, err);
+            else if (st == SS_OK)
+                st = ss_error_set(err, SS_EIDEMPOTENCY, "Idempotency-Key",
+                                  "this Idempotency-Key was used with a "
+                                  "different request body");
+        }
+    }
+    http_inflight_release(ctx->app, key);
+    return st;
+}
+
+ss_status handle_analyses_get(http_ctx *ctx, ss_error *err) {
+    store_conn *c = http_store_conn(ctx->app, err);
+    if (c == NULL)
+        return err->code;
+    store_record rec;
+    memset(&rec, 0, sizeof rec);
+    ss_status st = store_get(c, ctx->id, &rec, err);
+    if (st == SS_OK) {
+        ctx->doc = analysis_record_doc(&rec, err);
+        st = ctx->doc ? SS_OK : err->code;
+    }
+    store_record_release(&rec);
+    return st;
+}
+
+/* A list item: id, created_at, label, levels, method, the spectrum values
+ * (null without a spectrum) and the flag codes. */
+static json_t *analysis_list_item(const store_record *r) {
+    json_error_t jerr;
+    json_t *result =
+        r->result_json ? json_loads(r->result_json, 0, &jerr) : NULL;
+    json_t *values =
+        json_object_get(json_object_get(result, "spectrum"), "values");
+    json_t *codes = json_array();
+    json_t *flag;
+    size_t i;
+    json_array_foreach(json_object_get(result, "flags"), i, flag)
+        json_array_append(codes, json_object_get(flag, "code"));
+    json_t *item = json_pack(
+        "{s:s,s:s,s:s,s:i,s:s,s:O,s:o}", "id", r->id, "created_at",
+        r->created_at, "label", r->label, "levels", (int)r->levels, "method",
+        r->method, "values", values ? values : json_null(), "flags", codes);
+    json_decref(result);
+    return item;
+}
+
+ss_status handle_analyses_list(http_ctx *ctx, ss_error *err) {
+    store_query q = {http_query(ctx, "label"), http_query(ctx, "since"),
+                     http_query(ctx, "until"), 50, http_query(ctx, "cursor")};
+    const char *limit = http_query(ctx, "limit");
+    if (limit != NULL) {
+        char *end = NULL;
+        unsigned long v = strtoul(limit, &end, 10);
+        if (limit[0] < '0' || limit[0] > '9' || *end != '\0' || v < 1 ||
+            v > STORE_LIST_LIMIT_MAX)
+            return ss_error_set(err, SS_EINVAL, "limit",
+                                "limit must be a whole number from 1 to %u",
+                                STORE_LIST_LIMIT_MAX);
+        q.limit = (unsigned)v;
+    }
+    if (q.label != NULL && strlen(q.label) >= sizeof((store_record *)0)->label)
+        return ss_error_set(err, SS_EINVAL, "label", "label is too long");
+    store_conn *c = http_store_conn(ctx->app, err);
+    if (c == NULL)
+        return err->code;
+    store_page page;
+    memset(&page, 0, sizeof page);
+    ss_status st = store_list(c, &q, &page, err);
+    if (st != SS_OK)
+        return st;
+    json_t *items = json_array();
+    for (size_t k = 0; items && k < page.count; k++)
+        json_array_append_new(items, analysis_list_item(&page.items[k]));
+    ctx->doc = json_pack(
+        "{s:o,s:o}", "items", items ? items : json_array(), "next_cursor",
+        page.next_cursor[0] ? json_string(page.next_cursor) : json_null());
+    store_page_release(&page);
+    return ctx->doc ? SS_OK : ss_error_set(err, SS_ENOMEM, "", NULL);
+}

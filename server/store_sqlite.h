@@ -1,0 +1,91 @@
+/*
+ * store_sqlite.h — internals of the SQLite backend of the store, shared by
+ * store_sqlite.c, store_sqlite_read.c, store_sqlite_list.c and
+ * store_sqlite_schema.c.
+ *
+ * Handlers include store.h only.  Tests and diagnostics may use
+ * store_sqlite_handle() to reach the connection's own sqlite3 handle (for
+ * example to set PRAGMA max_page_count and meet a real SQLITE_FULL).
+ */
+#ifndef SWAPSPEC_STORE_SQLITE_H
+#define SWAPSPEC_STORE_SQLITE_H
+
+#include <sqlite3.h>
+
+#include "store_internal.h"
+
+/* PRAGMA application_id of a swapspec store: "SwSp". */
+#define STORE_SQLITE_APPLICATION_ID 0x53775370
+
+/* Statements prepared once per connection. */
+enum {
+    SQ_BEGIN,
+    SQ_COMMIT,
+    SQ_ROLLBACK,
+    SQ_SAVEPOINT,
+    SQ_RELEASE,
+    SQ_ROLLBACK_TO,
+    SQ_PUT_ANALYSIS,
+    SQ_PUT_KEY,
+    SQ_GET,
+    SQ_KEY_FIND,
+    SQ_KEY_PURGE,
+    SQ_COUNT,
+    SQ_CHECK,
+    SQ_FIXED_COUNT
+};
+
+/* One list statement per combination of filters: label, since, until,
+ * cursor (bit 0..3). */
+#define SQ_LIST_VARIANTS 16
+
+struct store {
+    char *path;
+    int busy_timeout_ms;
+    unsigned long long dev, ino; /* the file opened (see store_check) */
+};
+
+struct store_conn {
+    const store *owner;
+    sqlite3 *db;
+    sqlite3_stmt *fixed[SQ_FIXED_COUNT];
+    sqlite3_stmt *list[SQ_LIST_VARIANTS]; /* prepared on first use */
+};
+
+/* Maps an SQLite result code to a status: BUSY/LOCKED -> SS_EBUSY, FULL ->
+ * SS_ESTOREFULL, NOMEM -> SS_ENOMEM, anything else -> SS_ESTORE. */
+ss_status store_sqlite_status(int rc);
+
+/* Records the failure rc of `doing` on db (may be NULL) as
+ * "store PATH: DOING: sqlite message" and returns its status. */
+ss_status store_sqlite_fail(sqlite3 *db, const char *path, int rc,
+                            const char *doing, ss_error *err);
+
+/* Opens a connection with the per-connection settings (NOMUTEX, busy
+ * timeout, synchronous=FULL, foreign keys, extended result codes). */
+ss_status store_sqlite_connect(const char *path, int busy_timeout_ms,
+                               int create, sqlite3 **out, ss_error *err);
+
+/* Brings the schema of db to the latest version (one transaction per
+ * migration step) and switches the file to WAL.  Refuses a file of another
+ * application or of a newer schema with SS_ESTORE. */
+ss_status store_sqlite_migrate(sqlite3 *db, const char *path, ss_error *err);
+
+/* The schema version store_sqlite_migrate brings a file to. */
+int store_sqlite_schema_latest(void);
+
+/* Fills *out from a row (id, created_at, label, levels, method,
+ * software_version, [request_json,] result_json); the JSON texts are
+ * copied.  SS_ESTORE when a stored field does not fit the record. */
+ss_status store__read_row(store_conn *c, sqlite3_stmt *q, int with_request,
+                          store_record *out, ss_error *err);
+
+/* The SQL of list variant `variant` (bits: label, since, until, cursor)
+ * written into buf; -1 when it does not fit.  Parameters: :label, :since,
+ * :until, :after_t, :after_id, :limit. */
+int store_sqlite_list_sql(unsigned variant, char *buf, size_t cap);
+
+/* The connection's sqlite3 handle (tests and diagnostics only). */
+sqlite3 *store_sqlite_handle(store_conn *c);
+
+#endif /* SWAPSPEC_STORE_SQLITE_H */

@@ -1,0 +1,465 @@
+/*
+ * test_http.c — the service end to end: `swapspec serve` runs as a child
+ * process on a loopback port and is driven over real sockets.  Covers the
+ * compute routes, stored analyses with Idempotency-Key, keyset pagination,
+ * RFC 9457 problems for each error class (with JSON pointers), access
+ * control per route and role, the loopback-only rule without tokens,
+ * /metrics in the Prometheus text format, graceful shutdown on SIGTERM, and
+ * durability of acknowledged analyses across kill -9.
+ */
+#include <math.h>
+#include <pthread.h>
+
+#include "http_harness.h"
+
+static hh_daemon hd;
+
+static void hd_setup(void) { hh_tmpdir(hd.dir, sizeof hd.dir); }
+static void hd_teardown(void) {
+    if (hd.pid > 0)
+        hh_stop(&hd, SIGKILL);
+    hh_rmdir(hd.dir);
+}
+
+static const char *const PREDICT =
+    "{\"levels\":3,\"atoms\":24,\"spectrum\":[0.6,0.3,0.1],\"top\":3}";
+static const char *const ANALYSIS =
+    "{\"levels\":3,\"label\":\"quillfeather/test\",\"runs\":[{\"atoms\":12,"
+    "\"shots\":300,\"mean_energy\":27.0,\"energy_variance\":90.0}],"
+    "\"method\":\"moments\"}";
+
+/* The problem document of r: status, type suffix and (optional) pointer. */
+static void expect_problem(const hh_response *r, int status, const char *name,
+                           const char *pointer) {
+    char ct[128];
+    cr_expect(r->status == status, "status %d, expected %d (%s)", r->status,
+              status, r->body);
+    cr_expect(hh_header(r, "Content-Type", ct, sizeof ct) &&
+                  strcmp(ct, "application/problem+json") == 0,
+              "problem content type");
+    cr_assert(r->json != NULL, "problem body is JSON: %s", r->body);
+    char type[96];
+    snprintf(type, sizeof type, "urn:swapspec:problem:%s", name);
+    cr_expect(
+        strcmp(json_string_value(json_object_get(r->json, "type")), type) == 0,
+        "type %s, expected %s",
+        json_string_value(json_object_get(r->json, "type")), type);
+    cr_expect(json_integer_value(json_object_get(r->json, "status")) == status);
+    cr_expect(json_is_string(json_object_get(r->json, "title")));
+    cr_expect(json_is_string(json_object_get(r->json, "detail")));
+    if (pointer != NULL) {
+        json_t *e = json_array_get(json_object_get(r->json, "errors"), 0);
+        const char *got = json_string_value(json_object_get(e, "pointer"));
+        cr_expect(got && strcmp(got, pointer) == 0, "pointer %s, expected %s",
+                  got ? got : "(none)", pointer);
+    }
+}
+
+Test(http, compute_routes_answer_like_the_command_line, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 60) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, PREDICT, &r);
+    cr_assert(r.status == 200, "%d %s", r.status, r.body);
+    /* the acceptance figures (closed forms of domain.md §2) */
+    cr_expect(fabs(json_real_value(json_object_get(r.json, "mean_content")) -
+                   126.96) < 1e-9);
+    cr_expect(
+        fabs(json_real_value(json_object_get(r.json, "content_variance")) -
+             611.064) < 1e-9);
+    cr_expect(json_array_size(json_object_get(r.json, "diagrams")) == 3);
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/candidates", NULL, "application/json",
+               NULL, "{\"levels\":3,\"atoms\":6,\"content\":3}", &r);
+    cr_assert(r.status == 200, "%s", r.body);
+    cr_expect(json_array_size(json_object_get(r.json, "degenerate_groups")) ==
+              1);
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/simulations", NULL, "application/json",
+               NULL,
+               "{\"levels\":3,\"atoms\":8,\"spectrum\":[0.5,0.3,0.2],"
+               "\"shots\":50,\"seed\":3,\"calibration\":{\"offset\":1,"
+               "\"pair_shift\":0.5,\"exchange\":2,\"noise_sd\":0.1,"
+               "\"unit\":\"Hz\"}}",
+               &r);
+    cr_assert(r.status == 200, "%s", r.body);
+    cr_expect(json_array_size(json_object_get(r.json, "energies")) == 50);
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/simulations", NULL, "application/json",
+               NULL,
+               "{\"levels\":3,\"atoms\":8,\"spectrum\":[0.5,0.3,0.2],"
+               "\"shots\":5000000}",
+               &r);
+    expect_problem(&r, 422, "work-budget-exceeded", "/shots");
+    hh_free(&r);
+}
+
+Test(http, every_error_class_is_a_problem_document, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 60) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, "{\"levels\":3,\"atoms\":24,\"spectrum\":[0.6,0.3,-0.1]}",
+               &r);
+    expect_problem(&r, 422, "invalid-argument", "/spectrum/2");
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, "{\"levels\":3,\"atoms\":24,\"colour\":1}", &r);
+    expect_problem(&r, 422, "invalid-argument", "/colour");
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json", NULL,
+               "{\"levels\":3,\"runs\":[{\"atoms\":6,\"shots\":10,"
+               "\"mean_energy\":3},{\"atoms\":6,\"shots\":10,\"mean_energy\":"
+               "3,\"energy_variance\":1},{\"atoms\":6,\"shots\":10,"
+               "\"mean_energy\":3,\"energy_variance\":-2}]}",
+               &r);
+    expect_problem(&r, 422, "invalid-argument", "/runs/0/energy_variance");
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, "{\"levels\":3,", &r);
+    expect_problem(&r, 400, "malformed-input", NULL);
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, "{\"levels\":3,\"levels\":4}", &r);
+    expect_problem(&r, 400, "malformed-input", NULL);
+    hh_free(&r);
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "text/plain", NULL,
+               PREDICT, &r);
+    expect_problem(&r, 415, "unsupported-media-type", NULL);
+    hh_free(&r);
+    hh_request(hd.port, "GET", "/v1/nothing-here", NULL, NULL, NULL, NULL, &r);
+    expect_problem(&r, 404, "not-found", NULL);
+    hh_free(&r);
+    hh_request(hd.port, "DELETE", "/v1/analyses", NULL, NULL, NULL, NULL, &r);
+    expect_problem(&r, 405, "method-not-allowed", NULL);
+    char allow[64];
+    cr_expect(hh_header(&r, "Allow", allow, sizeof allow) &&
+              strstr(allow, "POST") && strstr(allow, "GET"));
+    hh_free(&r);
+    hh_request(hd.port, "GET", "/v1/analyses/an_00000000000000000000", NULL,
+               NULL, NULL, NULL, &r);
+    expect_problem(&r, 404, "not-found", NULL);
+    hh_free(&r);
+    hh_request(hd.port, "GET", "/v1/analyses?limit=0", NULL, NULL, NULL, NULL,
+               &r);
+    expect_problem(&r, 422, "invalid-argument", "/limit");
+    hh_free(&r);
+    /* over the 1 MiB cap: decided from Content-Length before the body */
+    size_t big = (1u << 20) + 10;
+    char *body = malloc(big + 1);
+    memset(body, ' ', big);
+    body[big] = '\0';
+    body[0] = '{';
+    body[big - 1] = '}';
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json", NULL,
+               body, &r);
+    expect_problem(&r, 413, "content-too-large", NULL);
+    hh_free(&r);
+    free(body);
+    /* the daemon still serves */
+    hh_request(hd.port, "GET", "/healthz", NULL, NULL, NULL, NULL, &r);
+    cr_expect(r.status == 200);
+    hh_free(&r);
+}
+
+Test(http, analyses_are_stored_listed_and_idempotent, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 120) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r, again;
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: \"key-1\"", ANALYSIS, &r);
+    cr_assert(r.status == 201, "%d %s", r.status, r.body);
+    const char *id = json_string_value(json_object_get(r.json, "id"));
+    cr_assert(id != NULL);
+    char loc[128], want[128];
+    snprintf(want, sizeof want, "/v1/analyses/%s", id);
+    cr_expect(hh_header(&r, "Location", loc, sizeof loc) &&
+              strcmp(loc, want) == 0);
+    cr_expect(json_is_object(json_object_get(r.json, "result")));
+    cr_expect(json_is_object(json_object_get(r.json, "request")));
+    /* the same key and body: the stored record, no new one */
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: \"key-1\"", ANALYSIS, &again);
+    cr_expect(again.status == 200, "%d", again.status);
+    char replay[16];
+    cr_expect(hh_header(&again, "Idempotent-Replayed", replay, sizeof replay));
+    cr_expect(
+        strcmp(json_string_value(json_object_get(again.json, "id")), id) == 0);
+    cr_expect(json_equal(json_object_get(again.json, "result"),
+                         json_object_get(r.json, "result")));
+    hh_free(&again);
+    /* the same key, another body */
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: \"key-1\"",
+               "{\"levels\":2,\"runs\":[{\"atoms\":4,\"shots\":100,"
+               "\"mean_energy\":3.5,\"energy_variance\":3}]}",
+               &again);
+    expect_problem(&again, 422, "idempotency-key-reused", "/Idempotency-Key");
+    hh_free(&again);
+    hh_request(hd.port, "GET", want, NULL, NULL, NULL, NULL, &again);
+    cr_expect(again.status == 200);
+    cr_expect(json_equal(json_object_get(again.json, "result"),
+                         json_object_get(r.json, "result")));
+    hh_free(&again);
+    hh_free(&r);
+    /* more records, then page through them newest first */
+    for (int k = 0; k < 6; k++) {
+        hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+                   NULL, ANALYSIS, &r);
+        cr_assert(r.status == 201);
+        hh_free(&r);
+    }
+    char path[256] = "/v1/analyses?limit=3&label=quillfeather/test";
+    int seen = 0, pages = 0;
+    char last[40] = "9999";
+    for (;;) {
+        hh_request(hd.port, "GET", path, NULL, NULL, NULL, NULL, &r);
+        cr_assert(r.status == 200, "%s", r.body);
+        json_t *items = json_object_get(r.json, "items"), *it;
+        size_t i;
+        json_array_foreach(items, i, it) {
+            const char *at =
+                json_string_value(json_object_get(it, "created_at"));
+            cr_expect(strcmp(at, last) <= 0, "newest first");
+            snprintf(last, sizeof last, "%s", at);
+            seen++;
+        }
+        pages++;
+        json_t *next = json_object_get(r.json, "next_cursor");
+        if (!json_is_string(next)) {
+            hh_free(&r);
+            break;
+        }
+        snprintf(path, sizeof path,
+                 "/v1/analyses?limit=3&label=quillfeather/test&cursor=%s",
+                 json_string_value(next));
+        hh_free(&r);
+    }
+    cr_expect(seen == 7, "seen %d of 7", seen);
+    cr_expect(pages == 3);
+}
+
+/* Four levels from means and variances: every bootstrap replicate solves
+ * for the maximum-entropy spectrum, so 10 000 of them take a while.  The
+ * run is p = (0.4, 0.3, 0.2), 0.1) at n = 12: mean content 66·0.3 and the
+ * exact variance 73.26 (test_content_moments checks that value). */
+#define SLOW_BODY                                                              \
+    "{\"levels\":4,\"bootstrap\":10000,\"runs\":[{\"atoms\":12,"               \
+    "\"shots\":1000,\"mean_energy\":19.8,\"energy_variance\":73.26}],"         \
+    "\"method\":\"moments\"}"
+
+typedef struct {
+    int port;
+    int status;
+} hh_slow;
+
+static void *slow_post(void *arg) {
+    hh_slow *s = arg;
+    hh_response r;
+    /* a large bootstrap keeps the analysis busy for a while */
+    hh_request(s->port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: slow-1", SLOW_BODY, &r);
+    s->status = r.status;
+    hh_free(&r);
+    return NULL;
+}
+
+Test(http, same_key_while_running_is_409, .init = hd_setup, .fini = hd_teardown,
+     .timeout = 120) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_slow s = {hd.port, 0};
+    pthread_t t;
+    pthread_create(&t, NULL, slow_post, &s);
+    struct timespec nap = {0, 200 * 1000 * 1000};
+    nanosleep(&nap, NULL);
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: slow-1", SLOW_BODY, &r);
+    pthread_join(t, NULL);
+    cr_expect(s.status == 201, "first request: %d", s.status);
+    expect_problem(&r, 409, "conflict", NULL);
+    hh_free(&r);
+}
+
+Test(http, roles_per_route, .init = hd_setup, .fini = hd_teardown,
+     .timeout = 120) {
+    /* tokens: sha256 of "r-token", "w-token", "a-token" */
+    char tokens[256];
+    snprintf(tokens, sizeof tokens, "%s/tokens", hd.dir);
+    FILE *f = fopen(tokens, "w");
+    cr_assert(f != NULL);
+    const char *names[3] = {"r-token", "w-token", "a-token"};
+    const char *roles[3] = {"read", "write", "admin"};
+    for (int k = 0; k < 3; k++) {
+        char cmd[256], hex[80] = "";
+        snprintf(cmd, sizeof cmd, "printf %%s %s | sha256sum", names[k]);
+        FILE *p = popen(cmd, "r");
+        cr_assert(p && fscanf(p, "%64s", hex) == 1);
+        pclose(p);
+        fprintf(f, "%s %s  # test token\n", roles[k], hex);
+    }
+    fclose(f);
+    const char *extra[] = {"--tokens", tokens, NULL};
+    cr_assert(hh_start(&hd, extra) == 0);
+    static const struct {
+        const char *method, *path, *body;
+        int status[4]; /* none, read, write, admin */
+    } table[] = {
+        {"GET", "/healthz", NULL, {200, 200, 200, 200}},
+        {"GET", "/metrics", NULL, {200, 200, 200, 200}},
+        {"GET", "/v1/analyses", NULL, {401, 200, 200, 200}},
+        {"GET",
+         "/v1/analyses/an_00000000000000000000",
+         NULL,
+         {401, 404, 404, 404}},
+        {"POST",
+         "/v1/predictions",
+         "{\"levels\":2,\"atoms\":3,\"spectrum\":[0.5,0.5]}",
+         {401, 403, 200, 200}},
+        {"POST",
+         "/v1/candidates",
+         "{\"levels\":2,\"atoms\":3}",
+         {401, 403, 200, 200}},
+        {"POST",
+         "/v1/simulations",
+         "{\"levels\":2,\"atoms\":3,\"spectrum\":[0.5,0.5],\"shots\":2}",
+         {401, 403, 200, 200}},
+        {"POST",
+         "/v1/analyses",
+         "{\"levels\":2,\"runs\":[{\"atoms\":4,\"shots\":100,\"mean_energy\":"
+         "3.5,\"energy_variance\":3}]}",
+         {401, 403, 201, 201}},
+    };
+    const char *tok[4] = {NULL, "r-token", "w-token", "a-token"};
+    for (size_t i = 0; i < sizeof table / sizeof table[0]; i++)
+        for (int k = 0; k < 4; k++) {
+            hh_response r;
+            hh_request(hd.port, table[i].method, table[i].path, tok[k],
+                       table[i].body ? "application/json" : NULL, NULL,
+                       table[i].body, &r);
+            cr_expect(r.status == table[i].status[k], "%s %s as %s: %d",
+                      table[i].method, table[i].path, tok[k] ? tok[k] : "-",
+                      r.status);
+            char www[128];
+            if (r.status == 401)
+                cr_expect(hh_header(&r, "WWW-Authenticate", www, sizeof www) &&
+                          strncmp(www, "Bearer", 6) == 0);
+            hh_free(&r);
+        }
+    hh_response r;
+    hh_request(hd.port, "GET", "/v1/analyses", "wrong-token", NULL, NULL, NULL,
+               &r);
+    expect_problem(&r, 401, "unauthorized", NULL);
+    hh_free(&r);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+    /* tokens never reach the log */
+    FILE *log = fopen(hd.log, "r");
+    char line[4096];
+    while (log && fgets(line, sizeof line, log))
+        for (int k = 0; k < 3; k++)
+            cr_expect(strstr(line, names[k]) == NULL, "token in log: %s", line);
+    if (log)
+        fclose(log);
+}
+
+Test(http, refuses_non_loopback_without_tokens, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 30) {
+    const char *extra[] = {"--listen", "0.0.0.0:0", NULL};
+    int rc = hh_start(&hd, extra);
+    cr_expect(rc == 2, "exit status %d", rc);
+    FILE *log = fopen(hd.log, "r");
+    char line[4096] = "";
+    cr_assert(log && fgets(line, sizeof line, log));
+    fclose(log);
+    cr_expect(strstr(line, "loopback") != NULL, "%s", line);
+}
+
+Test(http, metrics_follow_the_text_format, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 60) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, PREDICT, &r);
+    hh_free(&r);
+    hh_request(hd.port, "GET", "/metrics", NULL, NULL, NULL, NULL, &r);
+    cr_assert(r.status == 200);
+    char ct[128];
+    cr_expect(hh_header(&r, "Content-Type", ct, sizeof ct) &&
+              strncmp(ct, "text/plain; version=0.0.4", 25) == 0);
+    /* Prometheus exposition format 0.0.4: TYPE before samples, +Inf bucket
+     * equal to _count, body ending in a newline */
+    const char *b = r.body;
+    cr_expect(r.body_len > 0 && b[r.body_len - 1] == '\n');
+    const char *type = strstr(b, "# TYPE swapspec_http_requests_total counter");
+    const char *sample =
+        strstr(b, "swapspec_http_requests_total{route=\"/v1/predictions\","
+                  "status=\"200\"} 1");
+    cr_expect(type && sample && type < sample, "%s", b);
+    cr_expect(strstr(b, "swapspec_http_request_duration_seconds_bucket{route="
+                        "\"/v1/predictions\",le=\"+Inf\"} 1") != NULL);
+    cr_expect(strstr(b, "swapspec_http_request_duration_seconds_count{route="
+                        "\"/v1/predictions\"} 1") != NULL);
+    cr_expect(strstr(b, "swapspec_analyses_stored 0") != NULL);
+    hh_free(&r);
+}
+
+Test(http, sigterm_drains_and_exits_cleanly, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 60) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r;
+    hh_request(hd.port, "GET", "/healthz", NULL, NULL, NULL, NULL, &r);
+    cr_expect(r.status == 200);
+    cr_expect(
+        strcmp(json_string_value(json_object_get(r.json, "store")), "ok") == 0);
+    hh_free(&r);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+    FILE *log = fopen(hd.log, "r");
+    char line[4096];
+    int shutdown = 0;
+    while (log && fgets(line, sizeof line, log))
+        shutdown |= strstr(line, "\"shutdown\"") != NULL;
+    if (log)
+        fclose(log);
+    cr_expect(shutdown, "a shutdown line is logged");
+}
+
+Test(http, acknowledged_analyses_survive_kill_9, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 180) {
+    char ids[40][40];
+    int acked = 0;
+    cr_assert(hh_start(&hd, NULL) == 0);
+    for (int k = 0; k < 40; k++) {
+        hh_response r;
+        char key[64];
+        snprintf(key, sizeof key, "Idempotency-Key: burst-%d", k);
+        hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+                   key, ANALYSIS, &r);
+        if (r.status == 201)
+            snprintf(ids[acked++], sizeof ids[0], "%.38s",
+                     json_string_value(json_object_get(r.json, "id")));
+        hh_free(&r);
+        if (k == 25)
+            break; /* then kill without warning */
+    }
+    cr_expect(hh_stop(&hd, SIGKILL) == 128 + SIGKILL);
+    cr_assert(hh_start(&hd, NULL) == 0);
+    for (int k = 0; k < acked; k++) {
+        char path[160];
+        snprintf(path, sizeof path, "/v1/analyses/%.39s", ids[k]);
+        hh_response r;
+        hh_request(hd.port, "GET", path, NULL, NULL, NULL, NULL, &r);
+        cr_expect(r.status == 200, "acknowledged %s lost after kill -9",
+                  ids[k]);
+        hh_free(&r);
+    }
+    /* a replay of an acknowledged key returns the stored record */
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
+               "Idempotency-Key: burst-3", ANALYSIS, &r);
+    cr_expect(r.status == 200);
+    cr_expect(
+        strcmp(json_string_value(json_object_get(r.json, "id")), ids[3]) == 0);
+    hh_free(&r);
+    cr_expect(acked == 26);
+}
