@@ -70,7 +70,9 @@ typedef struct {
     const char *until;  /* RFC 3339 date-time, exclusive, NULL = none */
     unsigned limit;     /* 1..STORE_LIST_LIMIT_MAX */
     const char *cursor; /* opaque next_cursor of a previous page, NULL or ""
-                           = first page */
+                           = first page; a cursor is a position (the last
+                           item seen), so it stays valid while newer
+                           records arrive */
 } store_query;
 
 typedef struct {

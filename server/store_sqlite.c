@@ -83,7 +83,9 @@ ss_status store_sqlite_connect(const char *path, int busy_timeout_ms,
     int rc = sqlite3_open_v2(path, &db, flags, NULL);
     if (rc == SQLITE_OK)
         rc = sqlite3_busy_timeout(db, busy_timeout_ms);
-    /* trusted_schema = ON: the CHECK constraints of our schema call
+    /* journal_size_limit: the WAL file is cut back to 64 MiB after a
+     * checkpoint that found it larger.
+     * trusted_schema = ON: the CHECK constraints of our schema call
      * json_valid(), which SQLite 3.40 does not mark innocuous.  The files
      * we open are our own; store_open refuses any other file before a
      * statement touches its tables. */
@@ -91,6 +93,7 @@ ss_status store_sqlite_connect(const char *path, int busy_timeout_ms,
         rc = sqlite3_exec(db,
                           "PRAGMA synchronous = FULL;"
                           "PRAGMA foreign_keys = ON;"
+                          "PRAGMA journal_size_limit = 67108864;"
                           "PRAGMA trusted_schema = ON",
                           NULL, NULL, NULL);
     if (rc != SQLITE_OK) {

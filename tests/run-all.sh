@@ -81,6 +81,7 @@ install_missing "${PACKAGES[@]}"
 
 run_tree build -- -DSWAPSPEC_WERROR=ON
 run_tree build-asan ASAN_OPTIONS=detect_leaks=1 \
+    LSAN_OPTIONS=suppressions=$PWD/tests/lsan-suppressions.txt \
     UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
     -- -DSWAPSPEC_SANITIZE=ON -DSWAPSPEC_WERROR=ON
 
