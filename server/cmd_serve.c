@@ -38,8 +38,9 @@ static const cli_option serve_options[OPT_N] = {
     [OPT_TOKENS] = {"tokens", CLI_PATH, 0, "FILE", 0, 0, 0,
                     "tokens file of `role sha256hex(token)` lines; without "
                     "one only loopback addresses are allowed"},
-    [OPT_THREADS] = {"threads", CLI_UINT, 0, "N", 1, 256, 0,
-                     "worker threads (default 4)"},
+    [OPT_THREADS] =
+        {"threads", CLI_UINT, 0, "N", 1, 256, 0,
+         "worker threads (default 16; they mostly wait on group commits)"},
     [OPT_TLS_CERT] = {"tls-cert", CLI_PATH, 0, "FILE.pem", 0, 0, 0,
                       "serve HTTPS with this certificate"},
     [OPT_TLS_KEY] = {"tls-key", CLI_PATH, 0, "FILE.pem", 0, 0, 0,

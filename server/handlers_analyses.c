@@ -19,24 +19,32 @@
 #define SWAPSPEC_VERSION "unknown"
 #endif
 
-/* {"id","created_at","label","request","result","software_version"} from a
- * stored record. */
-static json_t *analysis_record_doc(const store_record *r, ss_error *err) {
-    json_error_t jerr;
-    json_t *request =
-        r->request_json ? json_loads(r->request_json, 0, &jerr) : json_null();
-    json_t *result =
-        r->result_json ? json_loads(r->result_json, 0, &jerr) : json_null();
-    if (request == NULL || result == NULL) {
-        json_decref(request);
-        json_decref(result);
-        ss_error_set(err, SS_ESTORE, "",
-                     "the stored record %s cannot be read back", r->id);
-        return NULL;
+/* The record document as text, assembled from the stored JSON texts
+ * without parsing and printing them again. */
+static ss_status analysis_record_text(http_ctx *ctx, const store_record *r,
+                                      ss_error *err) {
+    json_t *head =
+        json_pack("{s:s,s:s,s:s,s:s}", "id", r->id, "created_at", r->created_at,
+                  "label", r->label, "software_version", r->software_version);
+    char *prefix = head ? json_dumps(head, JSON_COMPACT) : NULL;
+    json_decref(head);
+    if (prefix == NULL)
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    size_t plen = strlen(prefix); /* "{...}" */
+    size_t cap = plen + strlen(r->request_json) + strlen(r->result_json) + 32;
+    char *text = malloc(cap);
+    if (text == NULL) {
+        free(prefix);
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
     }
-    return json_pack("{s:s,s:s,s:s,s:o,s:o,s:s}", "id", r->id, "created_at",
-                     r->created_at, "label", r->label, "request", request,
-                     "result", result, "software_version", r->software_version);
+    prefix[plen - 1] = '\0'; /* drop the closing brace */
+    int n = snprintf(text, cap, "%s,\"request\":%s,\"result\":%s}", prefix,
+                     r->request_json, r->result_json);
+    free(prefix);
+    ctx->text = text;
+    ctx->text_len = (size_t)n;
+    ctx->content_type = "application/json";
+    return SS_OK;
 }
 
 static ss_status analysis_replay(http_ctx *ctx, store_conn *c, const char *id,
@@ -44,10 +52,8 @@ static ss_status analysis_replay(http_ctx *ctx, store_conn *c, const char *id,
     store_record rec;
     memset(&rec, 0, sizeof rec);
     ss_status st = store_get(c, id, &rec, err);
-    if (st == SS_OK) {
-        ctx->doc = analysis_record_doc(&rec, err);
-        st = ctx->doc ? SS_OK : err->code;
-    }
+    if (st == SS_OK)
+        st = analysis_record_text(ctx, &rec, err);
     store_record_release(&rec);
     if (st == SS_OK) {
         ctx->status = 200;
@@ -79,7 +85,7 @@ static int analysis_idem_key(http_ctx *ctx, char *key, size_t cap) {
 }
 
 /* Runs and stores a new analysis (no idempotency decision here). */
-static ss_status analysis_compute(http_ctx *ctx, store_conn *c, const char *key,
+static ss_status analysis_compute(http_ctx *ctx, const char *key,
                                   const char *fingerprint, ss_error *err) {
     api_request req;
     ss_status st = api_request_from_json(ctx->json, &req, err);
@@ -107,21 +113,20 @@ static ss_status analysis_compute(http_ctx *ctx, store_conn *c, const char *key,
                  ss_method_name(a->method));
         snprintf(rec.software_version, sizeof rec.software_version, "%s",
                  SWAPSPEC_VERSION);
-        rec.request_json = json_dumps(ctx->json, JSON_COMPACT);
+        /* the request as received (already checked to be one JSON object
+         * without duplicate keys); the result rendered once, and the
+         * response assembled from the same texts that are stored */
+        rec.request_json = strndup(ctx->body, ctx->body_len);
         rec.result_json =
             json_dumps(result, JSON_COMPACT | JSON_REAL_PRECISION(17));
         if (rec.request_json == NULL || rec.result_json == NULL)
             st = ss_error_set(err, SS_ENOMEM, "", NULL);
     }
-    if (st == SS_OK)
-        st = store_put(c, &rec, key, fingerprint, err);
+    if (st == SS_OK) /* group commit: returns once the record is durable */
+        st = committer_put(http_app_committer(ctx->app), &rec, key, fingerprint,
+                           err);
     if (st == SS_OK) {
-        ctx->doc = json_pack("{s:s,s:s,s:s,s:O,s:O,s:s}", "id", rec.id,
-                             "created_at", rec.created_at, "label", rec.label,
-                             "request", ctx->json, "result", result,
-                             "software_version", rec.software_version);
-        if (ctx->doc == NULL)
-            st = ss_error_set(err, SS_ENOMEM, "", NULL);
+        st = analysis_record_text(ctx, &rec, err);
         ctx->status = 201;
         snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s",
                  rec.id);
@@ -142,12 +147,12 @@ ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
                             "the Idempotency-Key header must be 1 to %u "
                             "visible ASCII characters (optionally quoted)",
                             STORE_IDEMPOTENCY_KEY_MAX);
+    if (!has_key)
+        return analysis_compute(ctx, NULL, NULL, err);
     store_conn *c = http_store_conn(ctx->app, err);
     if (c == NULL)
         return err->code;
     auth_sha256_hex(ctx->body, ctx->body_len, fp);
-    if (!has_key)
-        return analysis_compute(ctx, c, NULL, NULL, err);
     if (!http_inflight_take(ctx->app, key))
         return ss_error_set(err, SS_ECONFLICT, "Idempotency-Key",
                             "a request with this Idempotency-Key is still "
@@ -164,8 +169,9 @@ ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
     else if (st == SS_OK && found)
         st = analysis_replay(ctx, c, stored_id, err);
     else if (st == SS_OK) {
-        st = analysis_compute(ctx, c, key, fp, err);
-        if (st == SS_ECONFLICT) { /* stored meanwhile by another process */
+        st = analysis_compute(ctx, key, fp, err);
+        if (st == SS_ECONFLICT && strcmp(err->field, "idempotency_key") == 0) {
+            /* stored meanwhile by another process */
             ss_error_clear(err);
             st = store_idempotency_find(c, key, stored_fp, stored_id, &found,
                                         err);
@@ -188,10 +194,8 @@ ss_status handle_analyses_get(http_ctx *ctx, ss_error *err) {
     store_record rec;
     memset(&rec, 0, sizeof rec);
     ss_status st = store_get(c, ctx->id, &rec, err);
-    if (st == SS_OK) {
-        ctx->doc = analysis_record_doc(&rec, err);
-        st = ctx->doc ? SS_OK : err->code;
-    }
+    if (st == SS_OK)
+        st = analysis_record_text(ctx, &rec, err);
     store_record_release(&rec);
     return st;
 }

@@ -16,6 +16,7 @@
 #include <stddef.h>
 
 #include "auth.h"
+#include "committer.h"
 #include "metrics.h"
 #include "store.h"
 #include "swapspec.h"
@@ -88,6 +89,8 @@ struct http_ctx {
  * the worker thread ends).  NULL with err set when the store fails. */
 store_conn *http_store_conn(http_app *app, ss_error *err);
 store *http_app_store(http_app *app);
+/* The group-commit writer every stored analysis goes through. */
+committer *http_app_committer(http_app *app);
 metrics *http_app_metrics(http_app *app);
 const http_settings *http_app_settings(http_app *app);
 

@@ -29,6 +29,7 @@
 struct http_app {
     http_settings settings;
     store *db;
+    committer *writer;
     auth_tokens *tokens;
     metrics *stats;
     pthread_key_t conn_key;
@@ -55,7 +56,7 @@ void http_settings_default(http_settings *s) {
     snprintf(s->listen_host, sizeof s->listen_host, "127.0.0.1");
     s->listen_port = 8080;
     snprintf(s->data_path, sizeof s->data_path, "./var/swapspec.db");
-    s->threads = 4;
+    s->threads = 16;
     s->body_limit = 1u << 20;
     s->connection_timeout = 30;
     s->connection_limit = 256;
@@ -66,6 +67,7 @@ void http_settings_default(http_settings *s) {
 }
 
 store *http_app_store(http_app *app) { return app->db; }
+committer *http_app_committer(http_app *app) { return app->writer; }
 metrics *http_app_metrics(http_app *app) { return app->stats; }
 const http_settings *http_app_settings(http_app *app) { return &app->settings; }
 
@@ -135,7 +137,7 @@ static enum MHD_Result http_send(struct MHD_Connection *conn, http_request *req,
     char *body = text;
     size_t len = text_len;
     if (doc != NULL) {
-        body = json_dumps(doc, JSON_COMPACT | JSON_REAL_PRECISION(15));
+        body = json_dumps(doc, JSON_COMPACT | JSON_REAL_PRECISION(17));
         len = body ? strlen(body) : 0;
         json_decref(doc);
         content_type =
@@ -438,7 +440,8 @@ int http_serve(const http_settings *settings, ss_error *err) {
         auth_tokens_load(settings->tokens_path, &app->tokens, err) != SS_OK)
         goto done;
     store_options so = {2000};
-    if (store_open(settings->data_path, &so, &app->db, err) != SS_OK)
+    if (store_open(settings->data_path, &so, &app->db, err) != SS_OK ||
+        committer_start(app->db, 256, &app->writer, err) != SS_OK)
         goto done;
 
     struct sockaddr_in addr;
@@ -548,6 +551,7 @@ done:
         MHD_stop_daemon(d);
     free(cert);
     free(key);
+    committer_stop(app->writer); /* after the workers: nothing is queued */
     store_close(app->db);
     auth_tokens_free(app->tokens);
     metrics_free(app->stats);

@@ -307,7 +307,7 @@ ss_status ss_sampler_shot(ss_sampler *s, gsl_rng *rng, unsigned atoms,
 #define SS_RUNS_MAX 1000       /* runs in one request */
 #define SS_SHOTS_MAX 1000000   /* shots in one run (and in a request) */
 #define SS_BOOTSTRAP_MAX 10000 /* bootstrap replicates */
-#define SS_CANDIDATES_MAX 64   /* candidates listed per run */
+#define SS_CANDIDATES_MAX 16   /* candidates listed per run */
 
 typedef enum {
     SS_METHOD_AUTO,
