@@ -125,7 +125,9 @@ static inline int hh_start(hh_daemon *d, const char *const *extra) {
     return -1;
 }
 
-/* Stops the daemon with sig; returns its exit status (128+sig if killed). */
+/* Stops the daemon with sig; returns its exit status (128+sig if killed).
+ * After a clean stop the daemon's log must hold no sanitizer report (the
+ * sanitizer build runs the daemon instrumented too). */
 static inline int hh_stop(hh_daemon *d, int sig) {
     if (d->pid <= 0)
         return -1;
@@ -133,6 +135,17 @@ static inline int hh_stop(hh_daemon *d, int sig) {
     int status = 0;
     waitpid(d->pid, &status, 0);
     d->pid = 0;
+    if (sig != SIGKILL) {
+        FILE *f = fopen(d->log, "r");
+        char line[4096];
+        while (f && fgets(line, sizeof line, f))
+            cr_expect(strstr(line, "ERROR: LeakSanitizer") == NULL &&
+                          strstr(line, "ERROR: AddressSanitizer") == NULL &&
+                          strstr(line, "runtime error:") == NULL,
+                      "sanitizer report from the daemon: %s", line);
+        if (f)
+            fclose(f);
+    }
     return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
 }
 

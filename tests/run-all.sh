@@ -17,7 +17,7 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 JOBS="${JOBS:-2}"
 PACKAGES=(build-essential cmake pkg-config libgsl-dev libjansson-dev
           libcriterion-dev libmicrohttpd-dev libgnutls28-dev libsqlite3-dev
-          clang-format curl nodejs)
+          clang-format curl nodejs sqlite3)
 
 install_missing() {
     local missing=() pkg
@@ -65,13 +65,23 @@ run_tree() {
     local total fails=0
     total=$(ctest --test-dir "$dir" -N | sed -n 's/^Total Tests: *//p')
     total=${total:-0}
-    if ! env "${envs[@]}" ctest --test-dir "$dir" --output-on-failure; then
+    local out="$dir/ctest-output.log"
+    if ! env "${envs[@]}" ctest --test-dir "$dir" --output-on-failure \
+            2>&1 | tee "$out"; then
         local log="$dir/Testing/Temporary/LastTestsFailed.log"
         if [[ -f $log ]]; then
             fails=$(grep -c . "$log" || true)
         else
             fails=$total
         fi
+    fi
+    # Criterion runs tests in child processes whose sanitizer reports do not
+    # change their verdict: any report in the output fails the tier
+    local reports
+    reports=$(grep -c -E 'ERROR: (LeakSanitizer|AddressSanitizer)|runtime error:' "$out" || true)
+    if ((reports > 0)); then
+        echo "run-all: $reports sanitizer report(s) in $dir (see $out)"
+        fails=$((fails + 1))
     fi
     passed=$((passed + total - fails))
     failed=$((failed + fails))

@@ -157,6 +157,50 @@ Test(http, every_error_class_is_a_problem_document, .init = hd_setup,
     expect_problem(&r, 413, "content-too-large", NULL);
     hh_free(&r);
     free(body);
+    /* a table of bad bodies on the forward model: each gets its status and
+     * a problem document, and the next good request is served normally */
+    static const struct {
+        const char *body;
+        int status;
+        const char *name, *pointer;
+    } bad[] = {
+        {"{\"levels\":3,\"atoms\":24,\"spectrum\":[NaN,0.3,0.1]}", 400,
+         "malformed-input", NULL},
+        {"{\"levels\":3,\"atoms\":24,\"spectrum\":[Infinity,0,0]}", 400,
+         "malformed-input", NULL},
+        {"{\"levels\":3,\"atoms\":24,\"spectrum\":[1e400,0.3,0.1]}", 400,
+         "malformed-input", NULL},
+        {"{\"levels\":100,\"atoms\":24,\"spectrum\":[0.6,0.3,0.1]}", 422,
+         "invalid-argument", "/levels"},
+        {"{\"levels\":3,\"atoms\":1000000000,\"spectrum\":[0.6,0.3,0.1]}", 422,
+         "invalid-argument", "/atoms"},
+        {"{\"levels\":\"three\",\"atoms\":24,\"spectrum\":[0.6,0.3,0.1]}", 422,
+         "invalid-argument", "/levels"},
+        {"{\"levels\":3,\"atoms\":24,\"spectrum\":[0.6,0.3,0.2]}", 422,
+         "invalid-argument", "/spectrum"},
+        {"[1,2,3]", 400, "malformed-input", NULL},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
+        hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+                   NULL, bad[k].body, &r);
+        expect_problem(&r, bad[k].status, bad[k].name, bad[k].pointer);
+        hh_free(&r);
+        hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+                   NULL, PREDICT, &r);
+        cr_expect(r.status == 200, "good request after bad body %zu: %d", k,
+                  r.status);
+        hh_free(&r);
+    }
+    /* a 10 MB body */
+    size_t huge = 10u << 20;
+    body = malloc(huge + 1);
+    memset(body, ' ', huge);
+    body[huge] = '\0';
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL, body, &r);
+    expect_problem(&r, 413, "content-too-large", NULL);
+    hh_free(&r);
+    free(body);
     /* the daemon still serves */
     hh_request(hd.port, "GET", "/healthz", NULL, NULL, NULL, NULL, &r);
     cr_expect(r.status == 200);
@@ -462,4 +506,21 @@ Test(http, acknowledged_analyses_survive_kill_9, .init = hd_setup,
         strcmp(json_string_value(json_object_get(r.json, "id")), ids[3]) == 0);
     hh_free(&r);
     cr_expect(acked == 26);
+    /* one record per key: 26 acknowledged, the replay added none */
+    hh_request(hd.port, "GET", "/v1/analyses?limit=200", NULL, NULL, NULL, NULL,
+               &r);
+    cr_expect(json_array_size(json_object_get(r.json, "items")) ==
+                  (size_t)acked,
+              "%zu records", json_array_size(json_object_get(r.json, "items")));
+    hh_free(&r);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+    /* PRAGMA integrity_check on the store the crash left (sqlite3 shell) */
+    char cmd[256], out[64] = "";
+    snprintf(cmd, sizeof cmd, "sqlite3 %s/store.db 'PRAGMA integrity_check'",
+             hd.dir);
+    FILE *p = popen(cmd, "r");
+    cr_assert(p != NULL);
+    cr_expect(fgets(out, sizeof out, p) != NULL && strcmp(out, "ok\n") == 0,
+              "integrity_check: %s", out);
+    pclose(p);
 }
