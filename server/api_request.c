@@ -13,28 +13,7 @@
 #include <string.h>
 
 #include "calibration_file.h"
-
-static const char *req_type_name(const json_t *v) {
-    if (v == NULL)
-        return "nothing";
-    switch (json_typeof(v)) {
-    case JSON_OBJECT:
-        return "an object";
-    case JSON_ARRAY:
-        return "an array";
-    case JSON_STRING:
-        return "a string";
-    case JSON_INTEGER:
-    case JSON_REAL:
-        return "a number";
-    case JSON_TRUE:
-    case JSON_FALSE:
-        return "a boolean";
-    case JSON_NULL:
-        return "null";
-    }
-    return "an unknown value";
-}
+#include "cli_json.h"
 
 static int req_key_known(const char *key, const char *const *known) {
     for (size_t k = 0; known[k] != NULL; k++)
@@ -72,7 +51,7 @@ static int req_number(const json_t *obj, const char *key, const char *field,
     }
     if (!json_is_number(v)) {
         ss_error_set(err, SS_EINVAL, field, "must be a number, not %s",
-                     req_type_name(v));
+                     cli_json_type_name(v));
         return 0;
     }
     *out = json_number_value(v);
@@ -105,7 +84,7 @@ static ss_status req_run(const json_t *run, size_t i, api_request *out,
     if (!json_is_object(run))
         return ss_error_set(err, SS_EINVAL, prefix,
                             "each run must be an object, not %s",
-                            req_type_name(run));
+                            cli_json_type_name(run));
     ss_status st = req_check_keys(run, prefix, known, err);
     if (st != SS_OK)
         return st;
@@ -121,7 +100,7 @@ static ss_status req_run(const json_t *run, size_t i, api_request *out,
         if (!json_is_array(energies))
             return ss_error_set(err, SS_EINVAL, field,
                                 "must be an array of numbers, not %s",
-                                req_type_name(energies));
+                                cli_json_type_name(energies));
         const char *summary[] = {"shots", "mean_energy", "energy_variance"};
         for (size_t k = 0; k < 3; k++)
             if (json_object_get(run, summary[k]) != NULL) {
@@ -140,7 +119,7 @@ static ss_status req_run(const json_t *run, size_t i, api_request *out,
                 snprintf(field, sizeof field, "%s.energies[%zu]", prefix, k);
                 return ss_error_set(err, SS_EINVAL, field,
                                     "must be a number, not %s",
-                                    req_type_name(v));
+                                    cli_json_type_name(v));
             }
             out->energies[*energy_used + k] = json_number_value(v);
         }
@@ -166,7 +145,7 @@ static ss_status req_runs(const json_t *runs, api_request *out, ss_error *err) {
     if (!json_is_array(runs))
         return ss_error_set(err, SS_EINVAL, "runs",
                             "must be an array of runs, not %s",
-                            req_type_name(runs));
+                            cli_json_type_name(runs));
     size_t n = json_array_size(runs), total = 0;
     if (n == 0)
         return ss_error_set(err, SS_EINVAL, "runs",
@@ -229,7 +208,7 @@ static ss_status req_options(const json_t *root, api_request *out,
         if (!json_is_string(label))
             return ss_error_set(err, SS_EINVAL, "label",
                                 "must be a string, not %s",
-                                req_type_name(label));
+                                cli_json_type_name(label));
         if (json_string_length(label) >= sizeof out->label)
             return ss_error_set(err, SS_EINVAL, "label",
                                 "may have at most %zu bytes",
@@ -251,7 +230,7 @@ ss_status api_request_from_json(const json_t *root, api_request *out,
     if (!json_is_object(root)) {
         st = ss_error_set(err, SS_EMALFORMED, "",
                           "the request must be a JSON object, not %s",
-                          req_type_name(root));
+                          cli_json_type_name(root));
         goto fail;
     }
     st = req_check_keys(root, "", known, err);

@@ -9,32 +9,13 @@
  * Every error names the offending key as "calibration.<key>".
  */
 #include "calibration_file.h"
+#include "cli_json.h"
 
 #include <jansson.h>
 #include <stdio.h>
 #include <string.h>
 
 #define CAL_FIELD "calibration"
-
-static const char *cal_type_name(const json_t *v) {
-    switch (json_typeof(v)) {
-    case JSON_OBJECT:
-        return "an object";
-    case JSON_ARRAY:
-        return "an array";
-    case JSON_STRING:
-        return "a string";
-    case JSON_INTEGER:
-    case JSON_REAL:
-        return "a number";
-    case JSON_TRUE:
-    case JSON_FALSE:
-        return "a boolean";
-    case JSON_NULL:
-        return "null";
-    }
-    return "an unknown value";
-}
 
 /* jansson reports a duplicate as `duplicate object key near '"name"'`;
  * recover the name for the field, or leave key empty. */
@@ -95,7 +76,7 @@ static ss_status cal_read_object(const char *path, const json_t *obj,
         if (k < count && !json_is_number(value))
             return ss_error_set(err, SS_EINVAL, field,
                                 "%s: %s must be a number, not %s", path, key,
-                                cal_type_name(value));
+                                cli_json_type_name(value));
         if (k < count) {
             *slots[k] = json_number_value(value);
             continue;
@@ -108,7 +89,7 @@ static ss_status cal_read_object(const char *path, const json_t *obj,
         if (!json_is_string(value))
             return ss_error_set(err, SS_EINVAL, field,
                                 "%s: unit must be a string, not %s", path,
-                                cal_type_name(value));
+                                cli_json_type_name(value));
         if (json_string_length(value) >= sizeof cal->unit)
             return ss_error_set(err, SS_EINVAL, field,
                                 "%s: unit may have at most %zu bytes", path,
@@ -133,7 +114,7 @@ ss_status cli_calibration_from_object(const json_t *obj, const char *where,
     if (!json_is_object(obj))
         st = ss_error_set(err, SS_EINVAL, CAL_FIELD,
                           "%s: the calibration must be a JSON object, not %s",
-                          where, cal_type_name(obj));
+                          where, cli_json_type_name(obj));
     else
         st = cal_read_object(where, obj, &cal, err);
     if (st != SS_OK)
@@ -170,7 +151,7 @@ ss_status cli_calibration_load(const char *path, ss_calibration *out,
     if (!json_is_object(root))
         st = ss_error_set(err, SS_EMALFORMED, CAL_FIELD,
                           "%s must hold a JSON object, not %s", where,
-                          cal_type_name(root));
+                          cli_json_type_name(root));
     else
         st = cli_calibration_from_object(root, where, out, err);
     json_decref(root);

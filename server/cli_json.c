@@ -165,3 +165,34 @@ int cli_exit_code(ss_status code) {
         return 0;
     return ss_status_http(code) >= 500 ? 1 : 2;
 }
+
+const char *cli_json_type_name(const json_t *v) {
+    if (v == NULL)
+        return "nothing";
+    switch (json_typeof(v)) {
+    case JSON_OBJECT:
+        return "an object";
+    case JSON_ARRAY:
+        return "an array";
+    case JSON_STRING:
+        return "a string";
+    case JSON_INTEGER:
+    case JSON_REAL:
+        return "a number";
+    case JSON_TRUE:
+    case JSON_FALSE:
+        return "a boolean";
+    case JSON_NULL:
+        return "null";
+    }
+    return "an unknown value";
+}
+
+ss_status cli_json_finish(json_t *doc, json_t **doc_out, ss_error *err) {
+    if (err->code != SS_OK) {
+        json_decref(doc);
+        return err->code;
+    }
+    *doc_out = doc;
+    return SS_OK;
+}

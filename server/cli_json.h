@@ -45,6 +45,14 @@ json_t *cli_json_reals(const double *x, size_t n, const char *field,
 json_t *cli_json_calibration(const ss_calibration *cal, const char *source,
                              ss_error *err);
 
+/* "an object", "an array", "a string", "a number", "a boolean", "null" (or
+ * "nothing" for NULL): for messages about a value of the wrong type. */
+const char *cli_json_type_name(const json_t *v);
+
+/* The end of a command's run: on error (err set) releases doc and returns
+ * the error; otherwise hands doc to *doc_out and returns SS_OK. */
+ss_status cli_json_finish(json_t *doc, json_t **doc_out, ss_error *err);
+
 /* Significant digits of printed reals: 15 keeps every computed value to
  * ~1e-15 relative (far below any tolerance the results carry) without the
  * binary noise of 17 digits (0.6 prints as 0.6, not 0.59999999999999998). */

@@ -201,12 +201,7 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
     free(keep);
     ss_levels_free(groups);
     ss_diagram_set_free(set);
-    if (err->code != SS_OK) {
-        json_decref(doc);
-        return err->code;
-    }
-    *doc_out = doc;
-    return SS_OK;
+    return cli_json_finish(doc, doc_out, err);
 }
 
 const cli_command cli_cmd_diagrams = {

@@ -188,12 +188,7 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
     ss_levels_free(groups);
     free(order);
     ss_distribution_free(dist);
-    if (err->code != SS_OK) {
-        json_decref(doc);
-        return err->code;
-    }
-    *doc_out = doc;
-    return SS_OK;
+    return cli_json_finish(doc, doc_out, err);
 }
 
 const cli_command cli_cmd_predict = {

@@ -146,12 +146,7 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
     free(energies);
     gsl_rng_free(rng);
     ss_sampler_free(sampler);
-    if (err->code != SS_OK) {
-        json_decref(doc);
-        return err->code;
-    }
-    *doc_out = doc;
-    return SS_OK;
+    return cli_json_finish(doc, doc_out, err);
 }
 
 const cli_command cli_cmd_simulate = {

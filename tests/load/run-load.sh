@@ -35,9 +35,9 @@ done
 url="http://127.0.0.1:$port"
 summary() { grep '^wrk-summary' | sed 's/^wrk-summary //'; }
 echo "daemon pid $pid on $url, store $dir/load.db, ${secs}s at $conns connections"
-health=$(wrk -t2 -c"$conns" -d"${secs}s" --latency -s "$here/healthz.lua" "$url/healthz" | summary)
+health=$(wrk -t2 -c"$conns" -d"${secs}s" --latency -s "$here/load.lua" "$url/healthz" | summary)
 echo "GET  /healthz     $health"
-analyses=$(wrk -t2 -c"$conns" -d"${secs}s" --latency -s "$here/analyses.lua" "$url/v1/analyses" | summary)
+analyses=$(wrk -t2 -c"$conns" -d"${secs}s" --latency -s "$here/load.lua" "$url/v1/analyses" -- analyses | summary)
 echo "POST /v1/analyses $analyses"
 rss=$(awk '/VmRSS/ {print $2}' "/proc/$pid/status")
 hr=$(echo "$health" | sed 's/.*rate=\([0-9.]*\).*/\1/')

@@ -1,13 +1,20 @@
--- tests/load/analyses.lua — wrk script: POST /v1/analyses with a moments
--- request of three summary runs (the Quillfeather sample scenario, box trap
+-- tests/load/load.lua — wrk script for tests/load/run-load.sh.
+-- `wrk ... -s load.lua URL -- analyses` posts a moments request of three
+-- summary runs to /v1/analyses (the Quillfeather sample scenario, box trap
 -- A, true spectrum (0.55, 0.30, 0.15); exact model means and variances for
--- 8, 12 and 16 atoms).  Each request stores a new analysis.
-wrk.method = "POST"
-wrk.headers["Content-Type"] = "application/json"
-wrk.body = [[{"levels":3,"label":"load/boxtrap-a","method":"moments",
+-- 8, 12 and 16 atoms), each stored as a new analysis; without the argument
+-- it sends plain GETs (the /healthz baseline).  Either way `done` prints
+-- one `wrk-summary` line that run-load.sh reads.
+init = function(args)
+  if args[1] == "analyses" then
+    wrk.method = "POST"
+    wrk.headers["Content-Type"] = "application/json"
+    wrk.body = [[{"levels":3,"label":"load/boxtrap-a","method":"moments",
 "runs":[{"atoms":8,"shots":300,"mean_energy":11.62,"energy_variance":31.9},
 {"atoms":12,"shots":300,"mean_energy":27.39,"energy_variance":92.6},
 {"atoms":16,"shots":300,"mean_energy":49.8,"energy_variance":196.0}]}]]
+  end
+end
 
 done = function(summary, latency, requests)
   io.write(string.format(
