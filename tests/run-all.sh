@@ -17,7 +17,7 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 JOBS="${JOBS:-2}"
 PACKAGES=(build-essential cmake pkg-config libgsl-dev libjansson-dev
           libcriterion-dev libmicrohttpd-dev libgnutls28-dev libsqlite3-dev
-          clang-format curl nodejs sqlite3)
+          clang-format curl nodejs sqlite3 openssl)
 
 install_missing() {
     local missing=() pkg

@@ -524,3 +524,42 @@ Test(http, acknowledged_analyses_survive_kill_9, .init = hd_setup,
               "integrity_check: %s", out);
     pclose(p);
 }
+
+Test(http, tls_with_a_certificate_made_here, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 60) {
+    /* a throw-away self-signed certificate (openssl from Debian) */
+    char cmd[512];
+    snprintf(cmd, sizeof cmd,
+             "openssl req -x509 -newkey rsa:2048 -nodes -days 1 -subj "
+             "/CN=127.0.0.1 -keyout %s/key.pem -out %s/cert.pem "
+             ">/dev/null 2>&1",
+             hd.dir, hd.dir);
+    cr_assert(system(cmd) == 0, "openssl could not make a certificate");
+    char cert[128], key[128];
+    snprintf(cert, sizeof cert, "%s/cert.pem", hd.dir);
+    snprintf(key, sizeof key, "%s/key.pem", hd.dir);
+    const char *extra[] = {"--tls-cert", cert, "--tls-key", key, NULL};
+    cr_assert(hh_start(&hd, extra) == 0);
+    /* HTTPS answers (curl checks the chain against the certificate) */
+    char out[256] = "";
+    snprintf(cmd, sizeof cmd,
+             "curl -s --cacert %s https://127.0.0.1:%d/healthz", cert, hd.port);
+    FILE *p = popen(cmd, "r");
+    cr_assert(p != NULL);
+    cr_expect(fgets(out, sizeof out, p) != NULL);
+    pclose(p);
+    cr_expect(strstr(out, "\"status\":\"ok\"") != NULL, "%s", out);
+    /* plain HTTP on the TLS port gets no HTTP answer */
+    snprintf(cmd, sizeof cmd,
+             "curl -s -o /dev/null -w '%%{http_code}' "
+             "http://127.0.0.1:%d/healthz",
+             hd.port);
+    p = popen(cmd, "r");
+    cr_assert(p != NULL);
+    out[0] = '\0';
+    if (fgets(out, sizeof out, p) == NULL)
+        out[0] = '\0';
+    pclose(p);
+    cr_expect(strcmp(out, "200") != 0, "plain HTTP answered: %s", out);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+}
