@@ -129,9 +129,15 @@ static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
     /* p(θ) has no critical point inside the region (its Jacobian is
      * singular only on the region's boundary), so the extremes over the
      * ellipse ∩ region lie on the ellipse or on the region's boundary */
+    /* the rim by rotation: (c, s) turns by 2π/96 per step */
+    const double dc = cos(2 * 3.14159265358979323846 / 96);
+    const double ds = sin(2 * 3.14159265358979323846 / 96);
+    double cs = 1.0, sn = 0.0;
     for (int k = 0; k < 96; k++) {
-        double ang = 2 * 3.14159265358979323846 * k / 96;
-        double u = cos(ang) * zc, v = sin(ang) * zc;
+        double u = cs * zc, v = sn * zc;
+        double c2 = cs * dc - sn * ds;
+        sn = sn * dc + cs * ds;
+        cs = c2;
         double p[3];
         if (!ss__spectrum_from_moments(3, fit->theta[0] + l11 * u,
                                        fit->theta[1] + l21 * u + l22 * v, p))

@@ -30,22 +30,29 @@ static long double ss__ipow(long double x, int e) {
 
 void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
                          double *mean, double central[3]) {
-    long double P[4]; /* P2..P5 */
+    /* powers P_j^e for j = 2..5 and e = 0..4, and C(n, m) for m = 0..8,
+     * each computed once */
+    long double pw[4][5];
     for (unsigned j = 0; j < 4; j++) {
         long double s = 0.0L;
         for (unsigned i = 0; i < levels; i++)
             s += ss__ipow((long double)p[i], (int)j + 2);
-        P[j] = s;
+        pw[j][0] = 1.0L;
+        for (int e = 1; e < 5; e++)
+            pw[j][e] = pw[j][e - 1] * s;
     }
+    long double binom[9];
+    for (int m = 0; m < 9; m++)
+        binom[m] = ss__binom(atoms, m);
     long double raw[5] = {1.0L, 0, 0, 0, 0};
     size_t rows =
         sizeof ss__content_moment_rows / sizeof ss__content_moment_rows[0];
     for (size_t r = 0; r < rows; r++) {
         const int *e = ss__content_moment_rows[r].e;
-        long double term = ss__binom(atoms, ss__content_moment_rows[r].m) *
+        long double term = binom[ss__content_moment_rows[r].m] *
                            (long double)ss__content_moment_rows[r].count;
         for (int j = 0; j < 4; j++)
-            term *= ss__ipow(P[j], e[j]);
+            term *= pw[j][e[j]];
         raw[ss__content_moment_rows[r].k] += term;
     }
     long double m1 = raw[1];

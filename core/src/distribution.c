@@ -64,62 +64,18 @@ static int ss__odometer_next(ss__odometer *o) {
     return 0;
 }
 
-/* Adds variable xm to the level whose table covers partitions with at most
- * M rows (the table already holds s at M variables for <= M−1 rows). */
-static void ss__schur_add_variable(long double *t, const ss__rank_table *rt,
-                                   unsigned M, long double e_prev,
-                                   long double xm, long double *epow) {
-    long atoms = (long)rt->atoms;
-    ss__odometer o;
-    /* 1. partitions with a_M >= 1: s_ν(x_1..x_M) = e^{a_M} s_{ν−a_M}. */
-    epow[0] = 1.0L; /* products of positives: relative error j·2^-64 */
-    for (long j = 1; (long)M * j <= atoms; j++)
-        epow[j] = epow[j - 1] * e_prev;
-    ss__odometer_start(&o, M, atoms);
-    uint64_t base = 0;
-    do {
-        long run = o.b[1];
-        if (M == 1) {
-            for (long a1 = 1; a1 <= run; a1++)
-                t[a1] = epow[a1] * t[0];
-        } else if (o.a[M] >= 1) {
-            long src[SS_LEVELS_MAX + 1];
-            memcpy(src, o.a, sizeof src);
-            src[M] = 0;
-            uint64_t sbase = ss__rank_of(rt, src, M - 1);
-            long double f = epow[o.a[M]];
-            for (long a1 = 0; a1 <= run; a1++)
-                t[base + (uint64_t)a1] = f * t[sbase + (uint64_t)a1];
-        }
-        base += (uint64_t)run + 1;
-    } while (ss__odometer_next(&o));
-    /* 2. horizontal strips for the new variable, one row at a time. */
-    for (unsigned k = M; k >= 1; k--) {
-        ss__odometer_start(&o, M, atoms);
-        base = 0;
-        do {
-            long run = o.b[1];
-            if (k == 1) {
-                long double *r = t + base;
-                for (long a1 = 1; a1 <= run; a1++)
-                    r[a1] += xm * r[a1 - 1];
-            } else if (o.a[k] >= 1) {
-                long nb[SS_LEVELS_MAX + 1];
-                memcpy(nb, o.a, sizeof nb);
-                nb[k]--;
-                nb[k - 1]++;
-                uint64_t nbase = ss__rank_of(rt, nb, M);
-                /* for k == 2 the neighbour's a_1 is ours plus one; its rank
-                 * already includes that one box through nb[1] = 1. */
-                long double *r = t + base;
-                const long double *s = t + nbase;
-                for (long a1 = 0; a1 <= run; a1++)
-                    r[a1] += xm * s[a1];
-            }
-            base += (uint64_t)run + 1;
-        } while (ss__odometer_next(&o));
-    }
-}
+/* The step in both precisions: double where the span of relevant values
+ * fits (fast, vectorisable), long double elsewhere. */
+#define SS__DP_REAL double
+#define SS__DP_NAME ss__schur_add_variable_d
+#include "distribution_dp.h"
+#undef SS__DP_REAL
+#undef SS__DP_NAME
+#define SS__DP_REAL long double
+#define SS__DP_NAME ss__schur_add_variable_ld
+#include "distribution_dp.h"
+#undef SS__DP_REAL
+#undef SS__DP_NAME
 
 static ss_status ss__range_check(unsigned atoms, unsigned rank, double pmax,
                                  ss_error *err) {
@@ -139,25 +95,42 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     unsigned n = set->atoms, levels = set->levels;
     unsigned M = rank - 1;
     ss__rank_table rt = {0, 0, NULL};
-    long double *t = NULL, *epow = NULL, *lfact = NULL, *llog = NULL;
+    long double *lfact = NULL, *llog = NULL;
+    void *table = NULL, *epow = NULL;
     ss_status st = SS_ENOMEM;
     if (ss__rank_table_init(&rt, M, n) != SS_OK)
         goto done;
     uint64_t cells = ss__rank_cum(&rt, M, (long)n);
-    t = malloc((size_t)cells * sizeof *t);
-    epow = malloc(((size_t)n + 1) * sizeof *epow);
+    /* double suffices when the relevant values (>= 1e-12·(r·p_max)^-n, see
+     * ss__range_check) stay 1e20 above double's smallest normal and the
+     * largest (<= dim <= (n+1)^(r(r−1)/2)) below 1e300 */
+    int fast = (double)n * log((double)rank * q[0]) < 600.0 &&
+               0.5 * rank * (rank - 1.0) * log10(n + 1.0) < 300.0;
+    size_t cell = fast ? sizeof(double) : sizeof(long double);
+    table = malloc((size_t)cells * cell);
+    epow = malloc(((size_t)n + 1) * cell);
     lfact = malloc(((size_t)n + levels + 1) * sizeof *lfact);
     llog = malloc(((size_t)n + levels + 1) * sizeof *llog);
-    if (t == NULL || epow == NULL || lfact == NULL || llog == NULL)
+    if (table == NULL || epow == NULL || lfact == NULL || llog == NULL)
         goto done;
+    double *td = table;
+    long double *tl = table;
 
     long double x[SS_LEVELS_MAX] = {0};
     for (unsigned i = 0; i < rank; i++)
         x[i] = (long double)q[i] / (long double)q[0];
-    t[0] = 1.0L; /* one variable: only the empty partition is stored */
+    /* one variable: only the empty partition is stored */
+    if (fast)
+        td[0] = 1.0;
+    else
+        tl[0] = 1.0L;
     long double e = x[0];
     for (unsigned m = 2; m <= rank; m++) {
-        ss__schur_add_variable(t, &rt, m - 1, e, x[m - 1], epow);
+        if (fast)
+            ss__schur_add_variable_d(td, &rt, m - 1, (double)e,
+                                     (double)x[m - 1], epow);
+        else
+            ss__schur_add_variable_ld(tl, &rt, m - 1, e, x[m - 1], epow);
         e *= x[m - 1];
     }
     /* e = x_1⋯x_r now */
@@ -166,7 +139,7 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
      * k·2^-64·log k! (under 1e-12 for k <= 10^5) */
     lfact[0] = llog[0] = 0.0L;
     for (size_t k = 1; k <= (size_t)n + levels; k++) {
-        llog[k] = logl((long double)k);
+        llog[k] = fast ? (long double)log((double)k) : logl((long double)k);
         lfact[k] = lfact[k - 1] + llog[k];
     }
     long double log_scale = (long double)n * logl((long double)q[0]);
@@ -179,11 +152,12 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
             long a[SS_LEVELS_MAX + 1] = {0};
             for (unsigned j = 1; j < rank; j++)
                 a[j] = (long)row[j - 1] - (long)row[j];
-            long double s = t[ss__rank_of(&rt, a, M)];
+            size_t at = (size_t)ss__rank_of(&rt, a, M);
+            long double s = fast ? (long double)td[at] : tl[at];
             if (s > 0.0L)
                 lp = (double)(ss__log_tableaux(row, levels, lfact, llog) +
                               log_scale + (long double)row[rank - 1] * log_e +
-                              logl(s));
+                              (fast ? (long double)log(td[at]) : logl(s)));
         }
         d->log_probability[i] = lp;
         d->probability[i] = exp(lp);
@@ -203,7 +177,7 @@ done:
     if (st != SS_OK)
         ss_error_set(err, st, "", NULL);
     ss__rank_table_release(&rt);
-    free(t);
+    free(table);
     free(epow);
     free(lfact);
     free(llog);

@@ -66,35 +66,38 @@ ss_analysis_request ss_analysis_request_default(void) {
     return r;
 }
 
+/* The field path of run i is formatted only when there is an error. */
+#define SS__RUN_FAIL(code, name, ...)                                          \
+    do {                                                                       \
+        snprintf(field, sizeof field, "runs[%zu].%s", i, name);                \
+        return ss_error_set(err, code, field, __VA_ARGS__);                    \
+    } while (0)
+
 static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
                                   ss_error *err) {
     const ss_run *r = &req->runs[i];
     char field[64];
-    snprintf(field, sizeof field, "runs[%zu].atoms", i);
     if (r->atoms < 2 || r->atoms > SS_ATOMS_MAX)
-        return ss_error_set(err, SS_EINVAL, field,
-                            "atoms must be an integer from 2 to %d (one atom "
-                            "has no pair to interact), got %u",
-                            SS_ATOMS_MAX, r->atoms);
+        SS__RUN_FAIL(SS_EINVAL, "atoms",
+                     "atoms must be an integer from 2 to %d (one atom has no "
+                     "pair to interact), got %u",
+                     SS_ATOMS_MAX, r->atoms);
     uint64_t count = ss_diagram_count(r->atoms, req->levels);
     if (count > req->budget.max_diagrams)
-        return ss_error_set(err, SS_EBUDGET, field,
-                            "%u atoms with %u levels have %llu Young "
-                            "diagrams; the work budget max_diagrams allows "
-                            "%llu",
-                            r->atoms, req->levels, (unsigned long long)count,
-                            (unsigned long long)req->budget.max_diagrams);
+        SS__RUN_FAIL(SS_EBUDGET, "atoms",
+                     "%u atoms with %u levels have %llu Young diagrams; the "
+                     "work budget max_diagrams allows %llu",
+                     r->atoms, req->levels, (unsigned long long)count,
+                     (unsigned long long)req->budget.max_diagrams);
     if (r->energies != NULL) {
-        snprintf(field, sizeof field, "runs[%zu].energies", i);
         if (r->energy_count < 2)
-            return ss_error_set(err, SS_EINVAL, field,
-                                "a per-shot run needs at least 2 readings, "
-                                "got %zu",
-                                r->energy_count);
+            SS__RUN_FAIL(SS_EINVAL, "energies",
+                         "a per-shot run needs at least 2 readings, got %zu",
+                         r->energy_count);
         if (r->energy_count > SS_SHOTS_MAX)
-            return ss_error_set(err, SS_EINVAL, field,
-                                "at most %d readings per run, got %zu",
-                                SS_SHOTS_MAX, r->energy_count);
+            SS__RUN_FAIL(SS_EINVAL, "energies",
+                         "at most %d readings per run, got %zu", SS_SHOTS_MAX,
+                         r->energy_count);
         for (size_t k = 0; k < r->energy_count; k++)
             if (!isfinite(r->energies[k])) {
                 snprintf(field, sizeof field, "runs[%zu].energies[%zu]", i, k);
@@ -103,28 +106,25 @@ static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
             }
         return SS_OK;
     }
-    snprintf(field, sizeof field, "runs[%zu].shots", i);
     if (r->shots < 2)
-        return ss_error_set(err, SS_EINVAL, field,
-                            "a summary run needs at least 2 shots for a "
-                            "variance, got %zu",
-                            r->shots);
+        SS__RUN_FAIL(SS_EINVAL, "shots",
+                     "a summary run needs at least 2 shots for a variance, "
+                     "got %zu",
+                     r->shots);
     if (r->shots > SS_SHOTS_MAX)
-        return ss_error_set(err, SS_EINVAL, field,
-                            "at most %d shots per run, got %zu", SS_SHOTS_MAX,
-                            r->shots);
-    snprintf(field, sizeof field, "runs[%zu].mean_energy", i);
+        SS__RUN_FAIL(SS_EINVAL, "shots", "at most %d shots per run, got %zu",
+                     SS_SHOTS_MAX, r->shots);
     if (!isfinite(r->mean_energy))
-        return ss_error_set(err, SS_EINVAL, field, "must be a finite number");
-    snprintf(field, sizeof field, "runs[%zu].energy_variance", i);
+        SS__RUN_FAIL(SS_EINVAL, "mean_energy", "must be a finite number");
     if (!isfinite(r->energy_variance))
-        return ss_error_set(err, SS_EINVAL, field, "must be a finite number");
+        SS__RUN_FAIL(SS_EINVAL, "energy_variance", "must be a finite number");
     if (r->energy_variance < 0)
-        return ss_error_set(err, SS_EINVAL, field,
-                            "a variance cannot be negative, got %.17g",
-                            r->energy_variance);
+        SS__RUN_FAIL(SS_EINVAL, "energy_variance",
+                     "a variance cannot be negative, got %.17g",
+                     r->energy_variance);
     return SS_OK;
 }
+#undef SS__RUN_FAIL
 
 ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err) {
     if (req == NULL)
