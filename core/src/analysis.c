@@ -243,11 +243,8 @@ static void ss__flag_outside(ss_analysis *a, const ss__fit *fit,
     ss__flag_number(f, "implied_offset_shift", shift);
 }
 
-static ss_status ss__estimate_moments(ss_analysis *a,
-                                      const ss_analysis_request *req,
-                                      const ss__run_stats *rs,
-                                      const ss__fit *fit, double zc,
-                                      ss_error *err) {
+static void ss__estimate_moments(ss_analysis *a, const ss_analysis_request *req,
+                                 const ss__run_stats *rs, const ss__fit *fit) {
     unsigned d = a->levels;
     int use_p3 = fit->npar == 2;
     double theta[2] = {fit->theta[0], use_p3 || d == 2 ? fit->theta[1] : 0};
@@ -362,9 +359,6 @@ static ss_status ss__estimate_moments(ss_analysis *a,
             ss__flag_number(f, "gap_stderr", gap_se);
         }
     }
-    (void)zc;
-    (void)err;
-    return SS_OK;
 }
 
 static ss_status ss__estimate_likelihood(ss_analysis *a,
@@ -643,7 +637,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         a->diagnostics.dof = fit.dof;
         if (fit.dof > 0 && isfinite(fit.chi2) && fit.chi2 >= 0)
             a->diagnostics.p_value = gsl_cdf_chisq_Q(fit.chi2, fit.dof);
-        st = ss__estimate_moments(a, req, rs, &fit, zc, err);
+        ss__estimate_moments(a, req, rs, &fit);
         /* d = 3: profile intervals follow the curved root map (the delta
          * method linearises it and fails near equal eigenvalues) */
         if (st == SS_OK && method == SS_METHOD_MOMENTS && d == 3 &&
