@@ -67,15 +67,23 @@ static int ss__odometer_next(ss__odometer *o) {
 /* The step in both precisions: double where the span of relevant values
  * fits (fast, vectorisable), long double elsewhere. */
 #define SS__DP_REAL double
+#define SS__DP_LOG log
 #define SS__DP_NAME ss__schur_add_variable_d
+#define SS__DP_FILL ss__probabilities_d
 #include "distribution_dp.h"
 #undef SS__DP_REAL
+#undef SS__DP_LOG
 #undef SS__DP_NAME
+#undef SS__DP_FILL
 #define SS__DP_REAL long double
+#define SS__DP_LOG logl
 #define SS__DP_NAME ss__schur_add_variable_ld
+#define SS__DP_FILL ss__probabilities_ld
 #include "distribution_dp.h"
 #undef SS__DP_REAL
+#undef SS__DP_LOG
 #undef SS__DP_NAME
+#undef SS__DP_FILL
 
 static ss_status ss__range_check(unsigned atoms, unsigned rank, double pmax,
                                  ss_error *err) {
@@ -95,8 +103,7 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     unsigned n = set->atoms, levels = set->levels;
     unsigned M = rank - 1;
     ss__rank_table rt = {0, 0, NULL};
-    long double *lfact = NULL, *llog = NULL;
-    void *table = NULL, *epow = NULL;
+    void *table = NULL, *epow = NULL, *lfact = NULL, *llog = NULL;
     ss_status st = SS_ENOMEM;
     if (ss__rank_table_init(&rt, M, n) != SS_OK)
         goto done;
@@ -109,8 +116,8 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     size_t cell = fast ? sizeof(double) : sizeof(long double);
     table = malloc((size_t)cells * cell);
     epow = malloc(((size_t)n + 1) * cell);
-    lfact = malloc(((size_t)n + levels + 1) * sizeof *lfact);
-    llog = malloc(((size_t)n + levels + 1) * sizeof *llog);
+    lfact = malloc(((size_t)n + levels + 1) * sizeof(long double));
+    llog = malloc(((size_t)n + levels + 1) * sizeof(long double));
     if (table == NULL || epow == NULL || lfact == NULL || llog == NULL)
         goto done;
     double *td = table;
@@ -136,34 +143,23 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     /* e = x_1⋯x_r now */
 
     /* log k! as a running sum of log k: positive terms, absolute error below
-     * k·2^-64·log k! (under 1e-12 for k <= 10^5) */
-    lfact[0] = llog[0] = 0.0L;
-    for (size_t k = 1; k <= (size_t)n + levels; k++) {
-        llog[k] = fast ? (long double)log((double)k) : logl((long double)k);
-        lfact[k] = lfact[k - 1] + llog[k];
-    }
+     * k·eps·log k! (under 1e-12 relative in P for the sizes each precision
+     * is used for) */
     long double log_scale = (long double)n * logl((long double)q[0]);
     long double log_e = logl(e);
     long double total = 0.0L, mean = 0.0L;
-    for (size_t i = 0; i < set->count; i++) {
-        const uint32_t *row = set->rows + i * levels;
-        double lp = -HUGE_VAL;
-        if (rank == levels || row[rank] == 0) {
-            long a[SS_LEVELS_MAX + 1] = {0};
-            for (unsigned j = 1; j < rank; j++)
-                a[j] = (long)row[j - 1] - (long)row[j];
-            size_t at = (size_t)ss__rank_of(&rt, a, M);
-            long double s = fast ? (long double)td[at] : tl[at];
-            if (s > 0.0L)
-                lp = (double)(ss__log_tableaux(row, levels, lfact, llog) +
-                              log_scale + (long double)row[rank - 1] * log_e +
-                              (fast ? (long double)log(td[at]) : logl(s)));
-        }
-        d->log_probability[i] = lp;
-        d->probability[i] = exp(lp);
-        total += d->probability[i];
-        mean += (long double)d->probability[i] * (long double)set->content[i];
+    long double *lf = lfact, *ll = llog;
+    lf[0] = ll[0] = 0.0L;
+    for (size_t k = 1; k <= (size_t)n + levels; k++) {
+        ll[k] = fast ? (long double)log((double)k) : logl((long double)k);
+        lf[k] = lf[k - 1] + ll[k];
     }
+    if (fast)
+        ss__probabilities_d(d, td, &rt, rank, lf, ll, log_scale, log_e, &total,
+                            &mean);
+    else
+        ss__probabilities_ld(d, tl, &rt, rank, lf, ll, log_scale, log_e, &total,
+                             &mean);
     long double var = 0.0L;
     for (size_t i = 0; i < set->count; i++) {
         long double dc = (long double)set->content[i] - mean;

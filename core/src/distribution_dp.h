@@ -1,7 +1,8 @@
 /*
  * distribution_dp.h — the branching step of the Schur recursion, written
  * once and compiled for two number types by distribution.c: define
- * SS__DP_REAL (double or long double) and SS__DP_NAME, then include.  See
+ * SS__DP_REAL (double or long double), SS__DP_LOG (log or logl),
+ * SS__DP_NAME and SS__DP_FILL, then include.  See
  * distribution.c for the recursion and the rank order it runs in.
  */
 /* Adds variable xm to the level whose table covers partitions with at most
@@ -57,5 +58,45 @@ static void SS__DP_NAME(SS__DP_REAL *t, const ss__rank_table *rt, unsigned M,
             }
             base += (uint64_t)run + 1;
         } while (ss__odometer_next(&o));
+    }
+}
+
+/* Fills the probabilities of every diagram from the finished table t: log
+ * P = log f^λ (row form of the hook length formula, from the log tables)
+ * + n·log p_max + λ_r·log(x_1⋯x_r) + log s.  Accumulates ΣP and ΣP·c. */
+static void SS__DP_FILL(ss_distribution *d, const SS__DP_REAL *t,
+                        const ss__rank_table *rt, unsigned rank,
+                        const long double *lfact, const long double *llog,
+                        long double log_scale, long double log_e,
+                        long double *total, long double *mean) {
+    const ss_diagram_set *set = d->diagrams;
+    unsigned levels = set->levels, M = rank - 1;
+    for (size_t i = 0; i < set->count; i++) {
+        const uint32_t *row = set->rows + i * levels;
+        double lp = -HUGE_VAL;
+        if (rank == levels || row[rank] == 0) {
+            long a[SS_LEVELS_MAX + 1];
+            for (unsigned j = 1; j < rank; j++)
+                a[j] = (long)row[j - 1] - (long)row[j];
+            SS__DP_REAL s = t[ss__rank_of(rt, a, M)];
+            if (s > 0) {
+                /* the logs sum in long double in both precisions, so that
+                 * large terms that cancel (pure states) leave no trace */
+                long double lf = lfact[set->atoms];
+                for (unsigned j = 0; j < levels; j++) {
+                    unsigned long lj = row[j] + (levels - 1u - j);
+                    lf -= lfact[lj];
+                    for (unsigned k = j + 1; k < levels; k++)
+                        lf += llog[lj - (row[k] + (levels - 1u - k))];
+                }
+                lp = (double)(lf + log_scale +
+                              (long double)row[rank - 1] * log_e +
+                              (long double)SS__DP_LOG(s));
+            }
+        }
+        d->log_probability[i] = lp;
+        d->probability[i] = exp(lp);
+        *total += d->probability[i];
+        *mean += (long double)d->probability[i] * (long double)set->content[i];
     }
 }
