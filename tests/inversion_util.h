@@ -30,16 +30,6 @@ static inline gsl_rng *iv_rng(unsigned long seed) {
     return r;
 }
 
-static inline ss_sampler *iv_sampler(unsigned d, const double *p) {
-    ss_error err;
-    ss_error_clear(&err);
-    ss_sampler *s = NULL;
-    ss_status st = ss_sampler_alloc(d, p, d, &s, &err);
-    cr_assert(st == SS_OK && s != NULL, "ss_sampler_alloc(d=%u): %s (%s: %s)",
-              d, ss_status_name(st), err.field, err.message);
-    return s;
-}
-
 /* K simulated shots of n atoms under cal (ss_sampler_shot) into e[0..K-1]. */
 static inline void iv_shots(ss_sampler *s, gsl_rng *rng, unsigned n,
                             const ss_calibration *cal, size_t K, double *e) {

@@ -55,7 +55,7 @@ static cov_result run_coverage(const cov_case *c) {
     double t0 = tu_seconds_now();
     ss_calibration cal = ss_calibration_default();
     gsl_rng *rng = iv_rng(c->seed);
-    ss_sampler *s = iv_sampler(c->d, c->p);
+    ss_sampler *s = tu_sampler(c->d, c->p);
     double *e = malloc(c->shots * sizeof *e);
     cr_assert(e != NULL);
     unsigned hit[SS_LEVELS_MAX] = {0}, joint = 0;
@@ -231,7 +231,7 @@ Test(coverage, purity_unbiased) {
     double t0 = tu_seconds_now();
     ss_calibration cal = ss_calibration_default();
     gsl_rng *rng = iv_rng(7101UL);
-    ss_sampler *s = iv_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     double *e = malloc(K * sizeof *e);
     cr_assert(e != NULL);
     long double sum = 0.0L, sq = 0.0L;
@@ -284,7 +284,7 @@ Test(coverage, likelihood_variance_vs_cramer_rao) {
     double t0 = tu_seconds_now();
     ss_calibration cal = ss_calibration_default();
     gsl_rng *rng = iv_rng(8101UL);
-    ss_sampler *s = iv_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     double *e = malloc(K * sizeof *e);
     cr_assert(e != NULL);
     long double sum[3] = {0}, sq[3] = {0}, crb2[3] = {0};
@@ -344,7 +344,7 @@ Test(coverage, moments_beat_naive) {
     double t0 = tu_seconds_now();
     ss_calibration cal = ss_calibration_default();
     gsl_rng *rng = iv_rng(9101UL);
-    ss_sampler *s = iv_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     double *e = malloc(K * sizeof *e);
     cr_assert(e != NULL);
     double err_moments = 0.0, err_naive = 0.0;

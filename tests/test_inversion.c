@@ -586,7 +586,7 @@ Test(inversion, likelihood_reading_matches_no_diagram) {
     const double p[3] = {0.5, 0.3, 0.2};
     ss_calibration cal = ss_calibration_default();
     gsl_rng *rng = iv_rng(606UL);
-    ss_sampler *s = iv_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     double e0[50], e1[50];
     iv_shots(s, rng, 6, &cal, 50, e0);
     iv_shots(s, rng, 6, &cal, 50, e1);

@@ -16,16 +16,6 @@
 
 TestSuite(sampler, .init = tu_quiet_gsl, .timeout = 120);
 
-static ss_sampler *make_sampler(unsigned d, const double *p) {
-    ss_error err;
-    ss_error_clear(&err);
-    ss_sampler *s = NULL;
-    ss_status st = ss_sampler_alloc(d, p, d, &s, &err);
-    cr_assert(st == SS_OK && s != NULL, "ss_sampler_alloc(d=%u): %s (%s: %s)",
-              d, ss_status_name(st), err.field, err.message);
-    return s;
-}
-
 static gsl_rng *make_rng(unsigned long seed) {
     gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
     cr_assert(r != NULL);
@@ -63,7 +53,7 @@ Test(sampler, shapes_are_valid) {
     gsl_rng *rng = make_rng(11UL);
     for (size_t t = 0; t < TU_COUNT_OF(cases); ++t) {
         unsigned n = cases[t].n, d = cases[t].d;
-        ss_sampler *s = make_sampler(d, cases[t].p);
+        ss_sampler *s = tu_sampler(d, cases[t].p);
         for (int shot = 0; shot < 2000; ++shot) {
             uint32_t rows[SS_LEVELS_MAX];
             draw_ok(s, rng, n, rows);
@@ -80,7 +70,7 @@ Test(sampler, shapes_are_valid) {
     /* the largest admissible shot */
     double u[16];
     tu_fill_uniform(u, 16);
-    ss_sampler *s = make_sampler(16, u);
+    ss_sampler *s = tu_sampler(16, u);
     uint32_t rows[16];
     draw_ok(s, rng, SS_ATOMS_MAX, rows);
     cr_expect(tu_is_diagram(rows, 16, SS_ATOMS_MAX),
@@ -103,7 +93,7 @@ static void chi_square_case(unsigned n, unsigned d, const double *p,
     size_t m = set->count;
     unsigned long *obs = calloc(m, sizeof(unsigned long));
     cr_assert(obs != NULL);
-    ss_sampler *s = make_sampler(d, p);
+    ss_sampler *s = tu_sampler(d, p);
     gsl_rng *rng = make_rng(seed);
     for (unsigned long k = 0; k < shots; ++k) {
         uint32_t rows[SS_LEVELS_MAX];
@@ -190,7 +180,7 @@ Test(sampler, chi_square_degenerate_and_rank_deficient) {
  * practice; deterministic at the fixed seeds). */
 Test(sampler, reproducible_from_seed) {
     const double p[4] = {0.4, 0.3, 0.2, 0.1};
-    ss_sampler *s = make_sampler(4, p);
+    ss_sampler *s = tu_sampler(4, p);
     gsl_rng *a = make_rng(99UL), *b = make_rng(99UL), *c = make_rng(100UL);
     int differs = 0;
     for (int k = 0; k < 500; ++k) {
@@ -220,7 +210,7 @@ Test(sampler, shot_without_noise_is_exact) {
     cal.pair_shift = 0.25;
     cal.exchange = -1.5;
     cal.noise_sd = 0.0;
-    ss_sampler *s = make_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     gsl_rng *a = make_rng(7UL), *b = make_rng(7UL);
     const unsigned n = 15;
     for (int k = 0; k < 1000; ++k) {
@@ -258,7 +248,7 @@ Test(sampler, shot_noise_has_stated_width) {
     cal.pair_shift = 0.1;
     cal.exchange = 0.8;
     cal.noise_sd = 0.7;
-    ss_sampler *s = make_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     gsl_rng *rng = make_rng(31UL);
     const unsigned n = 10;
     const unsigned long shots = 100000UL;
@@ -302,7 +292,7 @@ static void row_means_case(unsigned n, unsigned d, const double *p,
         for (unsigned k = 0; k < d; ++k)
             exact[k] +=
                 dist->probability[i] * (double)dist->diagrams->rows[i * d + k];
-    ss_sampler *s = make_sampler(d, p);
+    ss_sampler *s = tu_sampler(d, p);
     gsl_rng *rng = make_rng(seed);
     double sum[SS_LEVELS_MAX] = {0}, sum2[SS_LEVELS_MAX] = {0};
     for (unsigned long m = 0; m < shots; ++m) {
@@ -386,7 +376,7 @@ Test(sampler, rejects_bad_input) {
     tu_expect_error(st, &err, SS_EINVAL, "levels", "17 levels");
 
     const double p[3] = {0.5, 0.3, 0.2};
-    ss_sampler *s = make_sampler(3, p);
+    ss_sampler *s = tu_sampler(3, p);
     gsl_rng *rng = make_rng(1UL);
     uint32_t rows[3] = {77, 77, 77};
     double energy = 12345.0;

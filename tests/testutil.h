@@ -29,6 +29,17 @@
 static inline void tu_quiet_gsl(void) { gsl_set_error_handler_off(); }
 
 /* C(n,2) as a double (exact for every n the tests use). */
+/* A sampler for spectrum p (d levels), asserting that it was made. */
+static inline ss_sampler *tu_sampler(unsigned d, const double *p) {
+    ss_error err;
+    ss_error_clear(&err);
+    ss_sampler *s = NULL;
+    ss_status st = ss_sampler_alloc(d, p, d, &s, &err);
+    cr_assert(st == SS_OK && s != NULL, "ss_sampler_alloc(d=%u): %s (%s: %s)",
+              d, ss_status_name(st), err.field, err.message);
+    return s;
+}
+
 static inline double tu_pairs(unsigned n) {
     return 0.5 * (double)n * ((double)n - 1.0);
 }
