@@ -220,7 +220,7 @@ static ss_status cli_parse_word(const cli_command *cmd, int argc, char **argv,
 
 ss_status cli_args_parse(const cli_command *cmd, int argc, char **argv,
                          cli_parsed *out, ss_error *err) {
-    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL};
+    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL, NULL};
     for (int i = 0; i < argc; i++)
         if (cli_is_help(argv[i]))
             parsed.help = 1;
@@ -334,7 +334,7 @@ static char *cli_json_text(const cli_option *opt, const char *key,
 
 ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
                              cli_parsed *out, ss_error *err) {
-    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL};
+    cli_parsed parsed = {cmd, NULL, 0, NULL, NULL, NULL};
     if (!json_is_object(body))
         return ss_error_set(err, SS_EMALFORMED, "",
                             "the request body must be a JSON object");

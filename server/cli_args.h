@@ -56,9 +56,11 @@ typedef struct {
     const cli_command *command;
     cli_value *values;
     int help;
-    const char *positional; /* the one positional word, when allowed */
-    json_t *calibration;    /* inline calibration object of a JSON body
-                               (a reference held until cli_args_free) */
+    const char *positional;  /* the one positional word, when allowed */
+    json_t *calibration;     /* inline calibration object of a JSON body
+                                (a reference held until cli_args_free) */
+    const ss_budget *budget; /* work budget; NULL = the core's default (the
+                                service sets a tighter one per request) */
 } cli_parsed;
 
 /* A subcommand: its options, and the function that computes its JSON

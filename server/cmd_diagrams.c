@@ -181,7 +181,7 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
         return err->code;
     ss_diagram_set *set = NULL;
     if (ss_diagram_set_alloc((unsigned)v[OPT_ATOMS].u,
-                             (unsigned)v[OPT_LEVELS].u, NULL, &set,
+                             (unsigned)v[OPT_LEVELS].u, args->budget, &set,
                              err) != SS_OK)
         return err->code;
     ss_levels *groups = NULL;

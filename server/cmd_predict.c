@@ -165,7 +165,7 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
                        NULL};
     ss_distribution *dist = NULL;
     if (ss_distribution_compute(pv.atoms, pv.levels, v[OPT_SPECTRUM].list,
-                                v[OPT_SPECTRUM].list_len, NULL, &dist,
+                                v[OPT_SPECTRUM].list_len, args->budget, &dist,
                                 err) != SS_OK)
         return err->code;
     size_t *order = ss_distribution_order_by_probability(dist);

@@ -114,6 +114,8 @@ static ss_status serve_set(http_settings *s, const char *key, const char *v,
     SERVE_UINT("connection_memory", s->connection_memory, 8192, 1ul << 24)
     SERVE_UINT("drain_seconds", s->drain_seconds, 0, 3600)
     SERVE_UINT("simulation_shots", s->simulation_shots, 1, 1000000)
+    SERVE_UINT("max_diagrams", s->budget.max_diagrams, 1, 8000000)
+    SERVE_UINT("max_table_cells", s->budget.max_table_cells, 1, 64000000)
 #undef SERVE_PATH
 #undef SERVE_UINT
     return ss_error_set(err, SS_EINVAL, field, "unknown setting '%s'", key);

@@ -91,6 +91,7 @@ static ss_status analysis_compute(http_ctx *ctx, const char *key,
     ss_status st = api_request_from_json(ctx->json, &req, err);
     if (st != SS_OK)
         return st;
+    req.req.budget = http_app_settings(ctx->app)->budget;
     ss_analysis *a = NULL;
     json_t *result = NULL;
     store_record rec;

@@ -16,6 +16,7 @@ static ss_status compute_with(const cli_command *cmd, http_ctx *ctx,
     ss_status st = cli_args_from_json(cmd, ctx->json, &args, err);
     if (st != SS_OK)
         return st;
+    args.budget = &http_app_settings(ctx->app)->budget;
     st = cmd->run(&args, &ctx->doc, err);
     cli_args_free(&args);
     return st;

@@ -36,6 +36,10 @@ typedef struct {
     size_t connection_memory;    /* per-connection pool (default 64 KiB) */
     unsigned drain_seconds;      /* shutdown deadline (default 10) */
     unsigned simulation_shots;   /* cap on shots over HTTP (100000) */
+    ss_budget budget;            /* per request: diagrams 1 000 000, Schur
+                                    table cells 8 000 000 (≈ 64–128 MiB), so
+                                    that the worker threads together stay
+                                    within a few GiB */
 } http_settings;
 
 void http_settings_default(http_settings *s);

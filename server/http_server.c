@@ -64,6 +64,8 @@ void http_settings_default(http_settings *s) {
     s->connection_memory = 64u * 1024u;
     s->drain_seconds = 10;
     s->simulation_shots = 100000;
+    s->budget.max_diagrams = 1000000;
+    s->budget.max_table_cells = 8000000;
 }
 
 store *http_app_store(http_app *app) { return app->db; }

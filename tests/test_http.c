@@ -179,6 +179,11 @@ Test(http, every_error_class_is_a_problem_document, .init = hd_setup,
         {"{\"levels\":3,\"atoms\":24,\"spectrum\":[0.6,0.3,0.2]}", 422,
          "invalid-argument", "/spectrum"},
         {"[1,2,3]", 400, "malformed-input", NULL},
+        /* 6 292 069 diagrams (OEIS A026820): over the service's per-request
+         * budget, refused before any work */
+        {"{\"levels\":10,\"atoms\":100,\"spectrum\":[0.1,0.1,0.1,0.1,0.1,"
+         "0.1,0.1,0.1,0.1,0.1]}",
+         422, "work-budget-exceeded", NULL},
     };
     for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
         hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
