@@ -475,6 +475,10 @@ int http_serve(const http_settings *settings, ss_error *err) {
     }
     /* worker threads inherit this mask: only the main thread takes
      * SIGTERM/SIGINT (sigwait below) */
+    /* a process started in the background may inherit SIGINT as ignored;
+     * an ignored signal is discarded, never left pending for sigwait */
+    signal(SIGINT, SIG_DFL);
+    signal(SIGTERM, SIG_DFL);
     sigset_t sigs;
     sigemptyset(&sigs);
     sigaddset(&sigs, SIGTERM);
