@@ -191,13 +191,7 @@ static void run_case(unsigned d, unsigned n, unsigned long seed) {
     gsl_matrix_free(rho);
 
     ss_distribution *dist = tu_distribution(n, d, p);
-    ss_levels *lv = NULL;
-    ss_error err;
-    ss_error_clear(&err);
-    ss_status st =
-        ss_levels_alloc(dist->diagrams, dist->probability, &lv, &err);
-    cr_assert(st == SS_OK, "ss_levels_alloc: %s (%s)", ss_status_name(st),
-              err.message);
+    ss_levels *lv = tu_levels(dist);
     double *w_core = calloc(span, sizeof(double));
     cr_assert(w_core != NULL);
     for (size_t g = 0; g < lv->count; ++g) {

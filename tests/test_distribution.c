@@ -704,13 +704,7 @@ Test(distribution, levels_of_a_distribution) {
     for (size_t t = 0; t < TU_COUNT_OF(cases); ++t) {
         ss_distribution *dist =
             tu_distribution(cases[t].n, cases[t].d, cases[t].p);
-        ss_levels *lv = NULL;
-        ss_error err;
-        ss_error_clear(&err);
-        ss_status st =
-            ss_levels_alloc(dist->diagrams, dist->probability, &lv, &err);
-        cr_assert(st == SS_OK, "ss_levels_alloc: %s (%s)", ss_status_name(st),
-                  err.message);
+        ss_levels *lv = tu_levels(dist);
         cr_assert(lv->first[0] == 0 &&
                       lv->first[lv->count] == dist->diagrams->count,
                   "levels do not cover the table");

@@ -272,6 +272,18 @@ static inline ss_distribution *tu_distribution(unsigned n, unsigned d,
     return dist;
 }
 
+/* Groups a distribution's diagrams by content and asserts success. */
+static inline ss_levels *tu_levels(const ss_distribution *dist) {
+    ss_levels *lv = NULL;
+    ss_error err;
+    ss_error_clear(&err);
+    ss_status st =
+        ss_levels_alloc(dist->diagrams, dist->probability, &lv, &err);
+    cr_assert(st == SS_OK, "ss_levels_alloc: %s (%s)", ss_status_name(st),
+              err.message);
+    return lv;
+}
+
 static inline ss_diagram_set *tu_diagram_set(unsigned n, unsigned d) {
     ss_error err;
     ss_error_clear(&err);

@@ -49,6 +49,9 @@ static inline uint64_t ss__rank_of(const ss__rank_table *t, const long *a,
     return r;
 }
 
+/* qsort comparator: doubles in decreasing order (spectrum.c). */
+int ss__cmp_double_desc(const void *a, const void *b);
+
 /* Saturating arithmetic for counts. */
 static inline uint64_t ss__sat_add(uint64_t a, uint64_t b) {
     return a > UINT64_MAX - b ? UINT64_MAX : a + b;

@@ -411,11 +411,6 @@ typedef struct {
     double sign, nll_best, limit;
 } ss__profile_ctx;
 
-static int ss__cmp_desc_p(const void *a, const void *b) {
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x < y) - (x > y);
-}
-
 /* Coordinates x = (p_1..p_{d−1}), p_d = 1 − Σx, unordered (the likelihood
  * is symmetric); 0 when x leaves the simplex. */
 static int ss__profile_point(unsigned d, const gsl_vector *v, double *p) {
@@ -429,7 +424,7 @@ static int ss__profile_point(unsigned d, const gsl_vector *v, double *p) {
     p[d - 1] = last;
     if (last < 0)
         return 0;
-    qsort(p, d, sizeof *p, ss__cmp_desc_p);
+    qsort(p, d, sizeof *p, ss__cmp_double_desc);
     return 1;
 }
 

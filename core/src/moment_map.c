@@ -28,11 +28,6 @@
 
 #define SS__PHYS_TOL 1e-12
 
-static int ss__cmp_desc_d(const void *a, const void *b) {
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x < y) - (x > y);
-}
-
 int ss__spectrum_from_moments(unsigned d, double p2, double p3, double *p) {
     if (d == 2) {
         double r = 2.0 * p2 - 1.0;
@@ -138,7 +133,7 @@ static void ss__record(ss__solutions *s, unsigned m1, unsigned m2, unsigned m3,
         p[k++] = v2;
     for (unsigned i = 0; i < m3; i++)
         p[k++] = t;
-    qsort(p, s->d, sizeof p[0], ss__cmp_desc_d);
+    qsort(p, s->d, sizeof p[0], ss__cmp_double_desc);
     double h = 0.0;
     for (unsigned i = 0; i < s->d; i++) {
         if (s->found == 0 || p[i] < s->lo[i])

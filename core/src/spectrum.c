@@ -6,14 +6,14 @@
  * and the variance with P3), which the tests hold against the exact tables
  * and against brute-force diagonalisation.  Owns no memory.
  */
-#include "swapspec.h"
+#include "internal.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
-static int ss__cmp_desc(const void *a, const void *b) {
+int ss__cmp_double_desc(const void *a, const void *b) {
     double x = *(const double *)a, y = *(const double *)b;
     return (x < y) - (x > y);
 }
@@ -51,7 +51,7 @@ ss_status ss_spectrum_validate(const double *p, size_t len, unsigned levels,
     if (sorted_out != NULL) {
         double tmp[SS_LEVELS_MAX];
         memcpy(tmp, p, len * sizeof *tmp);
-        qsort(tmp, len, sizeof *tmp, ss__cmp_desc);
+        qsort(tmp, len, sizeof *tmp, ss__cmp_double_desc);
         memcpy(sorted_out, tmp, len * sizeof *tmp);
     }
     return SS_OK;
