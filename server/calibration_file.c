@@ -60,11 +60,12 @@ static ss_status cal_load_error(const char *path, const json_error_t *jerr,
 /* Copies the checked fields of obj into *cal. */
 static ss_status cal_read_object(const char *path, const json_t *obj,
                                  ss_calibration *cal, ss_error *err) {
-    const char *const names[] = {"offset", "pair_shift", "exchange",
-                                 "noise_sd"};
+    const char *const names[] = {"offset", "pair_shift", "exchange", "noise_sd",
+                                 "coupling_spread"};
     double *const slots[] = {&cal->offset, &cal->pair_shift, &cal->exchange,
-                             &cal->noise_sd};
+                             &cal->noise_sd, &cal->coupling_spread};
     const size_t count = sizeof names / sizeof names[0];
+    const size_t required = 4; /* coupling_spread is optional */
     char field[sizeof err->field];
     const char *key;
     json_t *value;
@@ -84,7 +85,8 @@ static ss_status cal_read_object(const char *path, const json_t *obj,
         if (strcmp(key, "unit") != 0)
             return ss_error_set(err, SS_EINVAL, field,
                                 "%s has an unknown key '%s' (known: offset, "
-                                "pair_shift, exchange, noise_sd, unit)",
+                                "pair_shift, exchange, noise_sd, "
+                                "coupling_spread, unit)",
                                 path, key);
         if (!json_is_string(value))
             return ss_error_set(err, SS_EINVAL, field,
@@ -97,7 +99,7 @@ static ss_status cal_read_object(const char *path, const json_t *obj,
         memcpy(cal->unit, json_string_value(value),
                json_string_length(value) + 1);
     }
-    for (size_t k = 0; k < count; k++) {
+    for (size_t k = 0; k < required; k++) {
         if (json_object_get(obj, names[k]) == NULL) {
             snprintf(field, sizeof field, CAL_FIELD ".%s", names[k]);
             return ss_error_set(err, SS_EINVAL, field, "%s is missing '%s'",

@@ -1,9 +1,10 @@
 /*
  * calibration_file.h — reading a calibration from a JSON file.
  *
- * The file is one JSON object with exactly the keys offset, pair_shift,
- * exchange, noise_sd (numbers, all required) and unit (a string of at most
- * 15 bytes, optional).  Anything else is an error naming the key.
+ * The file is one JSON object with the keys offset, pair_shift, exchange,
+ * noise_sd (numbers, all required), coupling_spread (a number >= 0,
+ * optional) and unit (a string of at most 15 bytes, optional).  Anything else
+ * is an error naming the key.
  */
 #ifndef SWAPSPEC_CALIBRATION_FILE_H
 #define SWAPSPEC_CALIBRATION_FILE_H

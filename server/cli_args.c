@@ -361,7 +361,8 @@ ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
                 cli_args_free(&parsed);
                 return ss_error_set(err, SS_EINVAL, "calibration",
                                     "must be an object {offset, pair_shift, "
-                                    "exchange, noise_sd, unit}");
+                                    "exchange, noise_sd, coupling_spread?, "
+                                    "unit?}");
             }
             parsed.calibration = json_incref(v);
             continue;

@@ -111,6 +111,8 @@ json_t *cli_json_calibration(const ss_calibration *cal, const char *source,
     cli_json_put_real(obj, "pair_shift", cal->pair_shift, err);
     cli_json_put_real(obj, "exchange", cal->exchange, err);
     cli_json_put_real(obj, "noise_sd", cal->noise_sd, err);
+    if (cal->coupling_spread != 0.0)
+        cli_json_put_real(obj, "coupling_spread", cal->coupling_spread, err);
     cli_json_put_string(obj, "unit", cal->unit, err);
     cli_json_put_string(obj, "source", source, err);
     if (err->code != SS_OK) {

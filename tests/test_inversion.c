@@ -573,6 +573,90 @@ Test(inversion, few_shots) {
     ss_analysis_free(a);
 }
 
+/* The candidates' probabilities of a many-run request (the core computes
+ * the laws of all runs from one shared Schur table) equal, diagram by
+ * diagram, the law of each run computed on its own by
+ * ss_distribution_compute at the estimated spectrum.  Identity check;
+ * tolerance 1e-13 relative (both sum the same long-double logs, only the
+ * table's size differs).  Ten summary runs n = 8..26 at the exact moments
+ * of p = (0.6, 0.3, 0.1) (as the benchmark) plus a repeated n. */
+Test(inversion, shared_table_probabilities) {
+    const double p[3] = {0.6, 0.3, 0.1};
+    ss_calibration cal = ss_calibration_default();
+    ss_run runs[11];
+    for (unsigned r = 0; r < 10; r++)
+        runs[r] = iv_exact_run(8 + 2 * r, 400, p, 3, &cal);
+    runs[10] = iv_exact_run(12, 400, p, 3, &cal);
+    ss_analysis_request req = iv_request(3, runs, 11, SS_METHOD_MOMENTS);
+    ss_analysis *a = iv_analyse(&req, "eleven runs");
+    size_t checked = 0;
+    for (size_t r = 0; r < a->run_count; r++) {
+        ss_distribution *dist = NULL;
+        ss_error err;
+        ss_error_clear(&err);
+        cr_assert_eq(ss_distribution_compute(a->runs[r].atoms, 3, a->values, 3,
+                                             NULL, &dist, &err),
+                     SS_OK, "%s", err.message);
+        const ss_diagram_set *set = dist->diagrams;
+        for (size_t k = 0; k < a->runs[r].candidate_count; k++) {
+            const ss_candidate *c = &a->runs[r].candidates[k];
+            size_t i = 0;
+            while (i < set->count &&
+                   memcmp(set->rows + i * 3, c->rows, 3 * sizeof *c->rows))
+                i++;
+            cr_assert(i < set->count, "run %zu: candidate not a diagram", r);
+            double want = dist->probability[i];
+            cr_assert(fabs(c->probability - want) <= 1e-13 * want,
+                      "run %zu (n = %u) candidate %zu: %.17g vs %.17g", r,
+                      a->runs[r].atoms, k, c->probability, want);
+            checked++;
+        }
+        ss_distribution_free(dist);
+    }
+    cr_assert(checked >= 30, "only %zu candidates checked", checked);
+    ss_analysis_free(a);
+}
+
+/* symmetry-caution (core/src/analysis.c, SS__SYMMETRY_RATIO): the stated
+ * criterion is spread·√C(n,2) >= 0.1.  For n = 24, C(24,2) = 276 and
+ * √276 = 16.61, so spread 0.01 gives 0.166 (flag, on the 24-atom run 1 of
+ * two, with breaking_to_spacing = 0.01·√276 to 1e-12) and spread 0.005
+ * gives 0.083 (no flag); the 10-atom run 0 (√45·0.01 = 0.067) is below the
+ * criterion either way.  A negative spread is refused naming the field. */
+Test(inversion, symmetry_caution) {
+    const double p[3] = {0.5, 0.3, 0.2};
+    ss_calibration cal = ss_calibration_default();
+    ss_run runs[2] = {iv_exact_run(10, 400, p, 3, &cal),
+                      iv_exact_run(24, 400, p, 3, &cal)};
+    ss_analysis_request req = iv_request(3, runs, 2, SS_METHOD_MOMENTS);
+    req.calibration.coupling_spread = 0.01;
+    ss_analysis *a = iv_analyse(&req, "spread 0.01");
+    char buf[512];
+    const ss_flag *f = iv_flag(a, "symmetry-caution", 1);
+    cr_assert(f != NULL, "no symmetry-caution flag on run 1; flags: %s",
+              iv_flag_list(a, buf, sizeof buf));
+    double ratio = NAN;
+    cr_assert(iv_flag_number(f, "breaking_to_spacing", &ratio));
+    cr_assert(fabs(ratio - 0.01 * sqrt(276.0)) < 1e-12, "ratio %.17g", ratio);
+    cr_assert(iv_flag(a, "symmetry-caution", 0) == NULL);
+    ss_analysis_free(a);
+
+    req.calibration.coupling_spread = 0.005;
+    a = iv_analyse(&req, "spread 0.005");
+    cr_assert(iv_flag(a, "symmetry-caution", -2) == NULL,
+              "symmetry-caution at spread·√C(n,2) = 0.083; flags: %s",
+              iv_flag_list(a, buf, sizeof buf));
+    ss_analysis_free(a);
+
+    req.calibration.coupling_spread = -0.1;
+    ss_error err;
+    ss_error_clear(&err);
+    ss_analysis *bad = NULL;
+    cr_assert_eq(ss_analysis_run(&req, &bad, &err), SS_EINVAL);
+    cr_assert_str_eq(err.field, "calibration.coupling_spread");
+    cr_assert_null(bad);
+}
+
 /* ------------------------------------------------------------------------ */
 /* likelihood: readings that match no diagram                                 */
 

@@ -173,7 +173,12 @@ typedef struct {
     double pair_shift; /* V, per pair of atoms */
     double exchange;   /* J, multiplies the content sum; non-zero */
     double noise_sd;   /* σ of the detection noise, >= 0 */
-    char unit[16];     /* free-form unit label, e.g. "Hz" */
+    /* Measured spread of the pair couplings: the standard deviation of
+     * J_ij / J over the pairs (dimensionless, >= 0; 0 = uniform or not
+     * measured).  The energy model assumes equal couplings; a spread breaks
+     * the permutation symmetry and mixes diagrams (flag symmetry-caution). */
+    double coupling_spread;
+    char unit[16]; /* free-form unit label, e.g. "Hz" */
 } ss_calibration;
 
 /* offset 0, pair_shift 0, exchange 1, noise_sd 0, unit "" (energies in units
@@ -181,7 +186,7 @@ typedef struct {
 ss_calibration ss_calibration_default(void);
 
 /* SS_EINVAL naming the field: non-finite values, exchange == 0,
- * noise_sd < 0, unit not NUL-terminated. */
+ * noise_sd < 0, coupling_spread < 0, unit not NUL-terminated. */
 ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err);
 
 /* E(λ) = offset + pair_shift·C(n,2) + exchange·content. */
@@ -356,7 +361,8 @@ ss_analysis_request ss_analysis_request_default(void);
     X(SS_FLAG_OUTSIDE_PHYSICAL, "outside-physical-region")                     \
     X(SS_FLAG_NOISE_DOMINATED, "noise-dominated")                              \
     X(SS_FLAG_FEW_SHOTS, "few-shots")                                          \
-    X(SS_FLAG_ILL_CONDITIONED, "ill-conditioned")
+    X(SS_FLAG_ILL_CONDITIONED, "ill-conditioned")                              \
+    X(SS_FLAG_SYMMETRY_CAUTION, "symmetry-caution")
 
 typedef enum {
 #define SS_X_FLAG(e, name) e,

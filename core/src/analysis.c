@@ -19,6 +19,13 @@
 #define SS__FEW_SHOTS 30
 /* Half-width of an eigenvalue interval above which it says little. */
 #define SS__WIDE_INTERVAL 0.1
+/* symmetry-caution: the pair-coupling spread s breaks the permutation
+ * symmetry by a term of typical size s·√C(n,2)·|J| (C(n,2) independent
+ * deviations of the SWAP couplings, each SWAP of norm 1), against a level
+ * spacing |J| between content sums.  First-order perturbation theory then
+ * mixes diagrams with weight ≈ (s·√C(n,2))².  Our stated criterion: flag
+ * when that ratio reaches 0.1 (≈ 1 % mixing). */
+#define SS__SYMMETRY_RATIO 0.1
 #define SS__AUTO_BOOTSTRAP 200
 
 static double ss__sq(double x) { return x * x; }
@@ -162,8 +169,12 @@ static int ss__profile_d3(ss_analysis *a, const ss__fit *fit, double zc) {
                 p[1] = 1 - p[0];
                 p[2] = 0;
             }
-            double r0 = ss_spectrum_power_sum(p, 3, 2) - fit->theta[0];
-            double r1 = ss_spectrum_power_sum(p, 3, 3) - fit->theta[1];
+            /* power sums in double: a point off by 1e-16 is as good */
+            double s2 = p[0] * p[0] + p[1] * p[1] + p[2] * p[2];
+            double s3 =
+                p[0] * p[0] * p[0] + p[1] * p[1] * p[1] + p[2] * p[2] * p[2];
+            double r0 = s2 - fit->theta[0];
+            double r1 = s3 - fit->theta[1];
             double q = (r0 * r0 * fit->cov[3] - 2 * r0 * r1 * fit->cov[1] +
                         r1 * r1 * fit->cov[0]) /
                        det;
@@ -520,6 +531,40 @@ static void ss__flags_runs(ss_analysis *a, const ss_analysis_request *req,
     }
 }
 
+/* One flag for the run with the most atoms whose coupling spread breaks
+ * the symmetry the energy model assumes (see SS__SYMMETRY_RATIO). */
+static void ss__flag_symmetry(ss_analysis *a, const ss_analysis_request *req) {
+    double s = req->calibration.coupling_spread;
+    size_t worst = SIZE_MAX;
+    double ratio = 0;
+    for (size_t r = 0; r < req->run_count; r++) {
+        double n = (double)req->runs[r].atoms;
+        double q = s * sqrt(0.5 * n * (n - 1.0));
+        if (q >= SS__SYMMETRY_RATIO && q > ratio) {
+            ratio = q;
+            worst = r;
+        }
+    }
+    if (worst == SIZE_MAX)
+        return;
+    double J = fabs(req->calibration.exchange);
+    ss_flag *f = ss__flag_add(
+        a, SS_FLAG_SYMMETRY_CAUTION, (int)worst,
+        "Run %zu (%u atoms): the measured pair-coupling spread (%.3g of J) "
+        "adds a symmetry-breaking term of about %.3g %s against a level "
+        "spacing of %.3g %s, so diagrams mix at about the %.2g level and "
+        "the energies no longer follow the equal-coupling model exactly. "
+        "Treat the spectrum as approximate; flatten the trap or use fewer "
+        "atoms.",
+        worst, req->runs[worst].atoms, s, ratio * J, req->calibration.unit, J,
+        req->calibration.unit, ratio * ratio);
+    ss__flag_number(f, "coupling_spread", s);
+    ss__flag_number(f, "atoms", req->runs[worst].atoms);
+    ss__flag_number(f, "breaking_to_spacing", ratio);
+    ss__flag_number(f, "threshold", SS__SYMMETRY_RATIO);
+    ss__flag_number(f, "mixing_weight", ratio * ratio);
+}
+
 /* One flag per run whose candidates include diagrams sharing a content. */
 static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
                                 size_t r, const ss_calibration *cal) {
@@ -551,39 +596,71 @@ static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
         ss__flag_number(f, "probability_in_groups", prob);
 }
 
+/* Runs are handled in batches whose exact laws come from one Schur table
+ * (ss__distribution_compute_many); a batch holds at most this many diagrams
+ * in all, so that memory stays that of one large run. */
+#define SS__BATCH_DIAGRAMS 65536u
+
 static ss_status ss__candidates_all(ss_analysis *a,
                                     const ss_analysis_request *req,
                                     const ss__run_stats *rs, ss_error *err) {
     unsigned d = a->levels;
     double naive_sum[SS_LEVELS_MAX] = {0}, wsum = 0;
     ss_status st = SS_OK;
-    for (size_t r = 0; r < req->run_count && st == SS_OK; r++) {
-        ss_distribution *dist = NULL;
-        ss_diagram_set *set = NULL;
-        if (a->has_spectrum)
-            st = ss_distribution_compute(rs[r].atoms, d, a->values, d,
-                                         &req->budget, &dist, err);
-        else
-            st = ss_diagram_set_alloc(rs[r].atoms, d, &req->budget, &set, err);
-        if (st == SS_OK) {
+    size_t R = req->run_count;
+    ss_distribution **dists = calloc(R ? R : 1, sizeof *dists);
+    unsigned *atoms = malloc((R ? R : 1) * sizeof *atoms);
+    if (dists == NULL || atoms == NULL)
+        st = ss_error_set(err, SS_ENOMEM, "", NULL);
+    uint64_t *counts = calloc(R ? R : 1, sizeof *counts);
+    if (st == SS_OK && counts == NULL)
+        st = ss_error_set(err, SS_ENOMEM, "", NULL);
+    for (size_t r = 0; st == SS_OK && r < R; r++) {
+        atoms[r] = rs[r].atoms;
+        counts[r] = a->has_spectrum ? ss_diagram_count(atoms[r], d) : 0;
+    }
+    for (size_t first = 0; first < R && st == SS_OK;) {
+        size_t end = first + 1;
+        if (a->has_spectrum) {
+            uint64_t sum = counts[first];
+            while (end < R && sum + counts[end] <= SS__BATCH_DIAGRAMS)
+                sum += counts[end++];
+            st = ss__distribution_compute_many(atoms + first, end - first, d,
+                                               a->values, &req->budget,
+                                               dists + first, err);
+        }
+        for (size_t r = first; r < end && st == SS_OK; r++) {
+            ss_diagram_set *set = NULL;
+            if (!a->has_spectrum)
+                st = ss_diagram_set_alloc(rs[r].atoms, d, &req->budget, &set,
+                                          err);
+            if (st != SS_OK)
+                break;
             ss_run_result *out = &a->runs[r];
             double naive[SS_LEVELS_MAX];
             out->atoms = rs[r].atoms;
             out->shots = rs[r].shots;
             out->mean_energy = rs[r].mean_energy;
             out->energy_variance = rs[r].energy_variance;
-            st = ss__run_candidates(d, &req->calibration, &rs[r], req->window,
-                                    dist, dist ? dist->diagrams : set, out,
-                                    naive, err);
+            st = ss__run_candidates(
+                d, &req->calibration, &rs[r], req->window, dists[r],
+                dists[r] ? dists[r]->diagrams : set, out, naive, err);
             for (unsigned i = 0; i < d; i++)
                 naive_sum[i] += (double)rs[r].shots * naive[i];
             wsum += (double)rs[r].shots;
             if (st == SS_OK && out->degenerate_group_count > 0)
                 ss__flag_degenerate(a, out, r, &req->calibration);
+            ss_diagram_set_free(set);
+            ss_distribution_free(dists[r]);
+            dists[r] = NULL;
         }
-        ss_distribution_free(dist);
-        ss_diagram_set_free(set);
+        first = end;
     }
+    for (size_t r = 0; dists && r < R; r++)
+        ss_distribution_free(dists[r]);
+    free(dists);
+    free(atoms);
+    free(counts);
     if (st == SS_OK) {
         a->has_naive = 1;
         for (unsigned i = 0; i < d; i++)
@@ -687,6 +764,8 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         ss__flags_runs(a, req, rs, zc);
     }
     st = ss__candidates_all(a, req, rs, err);
+    if (st == SS_OK)
+        ss__flag_symmetry(a, req);
 done:
     free(rs);
     if (st != SS_OK) {

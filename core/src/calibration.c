@@ -1,7 +1,7 @@
 /*
  * calibration.c — the lab calibration {offset, pair_shift, exchange,
- * noise_sd, unit} and the energy model E(λ) = E0 + V·C(n,2) + J·c(λ).
- * Owns no memory.
+ * noise_sd, coupling_spread, unit} and the energy model E(λ) = E0 + V·C(n,2) +
+ * J·c(λ). Owns no memory.
  */
 #include "swapspec.h"
 
@@ -25,7 +25,8 @@ ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err) {
     } fields[] = {{"calibration.offset", cal->offset},
                   {"calibration.pair_shift", cal->pair_shift},
                   {"calibration.exchange", cal->exchange},
-                  {"calibration.noise_sd", cal->noise_sd}};
+                  {"calibration.noise_sd", cal->noise_sd},
+                  {"calibration.coupling_spread", cal->coupling_spread}};
     for (size_t i = 0; i < sizeof fields / sizeof fields[0]; i++)
         if (!isfinite(fields[i].value))
             return ss_error_set(err, SS_EINVAL, fields[i].field,
@@ -38,6 +39,10 @@ ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err) {
     if (cal->noise_sd < 0.0)
         return ss_error_set(err, SS_EINVAL, "calibration.noise_sd",
                             "noise_sd must be >= 0, got %.17g", cal->noise_sd);
+    if (cal->coupling_spread < 0.0)
+        return ss_error_set(err, SS_EINVAL, "calibration.coupling_spread",
+                            "coupling_spread must be >= 0, got %.17g",
+                            cal->coupling_spread);
     if (memchr(cal->unit, '\0', sizeof cal->unit) == NULL)
         return ss_error_set(err, SS_EINVAL, "calibration.unit",
                             "unit must be at most %zu characters",

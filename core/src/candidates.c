@@ -34,6 +34,25 @@ static int ss__cmp_pick(const void *pa, const void *pb) {
     return (a->index > b->index) - (a->index < b->index);
 }
 
+/* Keeps the first `keep` picks in comparator order (a strict total order,
+ * so the result equals qsort followed by truncation) in O(count·keep)
+ * instead of sorting every diagram in the window.  Returns the kept count. */
+static size_t ss__top_picks(ss__pick *picks, size_t count, size_t keep) {
+    size_t kept = 0;
+    for (size_t i = 0; i < count; i++) {
+        ss__pick p = picks[i];
+        if (kept == keep && ss__cmp_pick(&p, &picks[kept - 1]) >= 0)
+            continue;
+        size_t j = kept < keep ? kept++ : kept - 1;
+        while (j > 0 && ss__cmp_pick(&p, &picks[j - 1]) < 0) {
+            picks[j] = picks[j - 1];
+            j--;
+        }
+        picks[j] = p;
+    }
+    return kept;
+}
+
 ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
                              const ss__run_stats *rs, double window,
                              const ss_distribution *dist,
@@ -51,8 +70,11 @@ ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
         return ss_error_set(err, SS_ENOMEM, "", NULL);
     size_t count = 0, nearest = 0;
     double best_gap = HUGE_VAL;
+    /* E(λ) = E(content 0) + J·c(λ), the same sum ss_calibration_energy
+     * forms, hoisted out of the loop */
+    double e0 = ss_calibration_energy(cal, atoms, 0);
     for (size_t i = 0; i < n; i++) {
-        double e = ss_calibration_energy(cal, atoms, set->content[i]);
+        double e = e0 + cal->exchange * (double)set->content[i];
         double gap = fabs(e - mean);
         double prob = dist ? dist->probability[i] : 0.0;
         if (gap < best_gap - tol || (fabs(gap - best_gap) <= tol && dist &&
@@ -67,16 +89,14 @@ ss_status ss__run_candidates(unsigned d, const ss_calibration *cal,
     out->window_count = count;
     out->window_sd = sd;
     if (count == 0) { /* nothing in the window: list the nearest energy */
-        double e0 = ss_calibration_energy(cal, atoms, set->content[nearest]);
+        double en = ss_calibration_energy(cal, atoms, set->content[nearest]);
         for (size_t i = 0; i < n; i++)
             if (set->content[i] == set->content[nearest])
                 picks[count++] =
-                    (ss__pick){i, sd > 0 ? (e0 - mean) / sd : HUGE_VAL,
+                    (ss__pick){i, sd > 0 ? (en - mean) / sd : HUGE_VAL,
                                dist ? dist->probability[i] : 0.0};
     }
-    qsort(picks, count, sizeof *picks, ss__cmp_pick);
-    if (count > SS_CANDIDATES_MAX)
-        count = SS_CANDIDATES_MAX;
+    count = ss__top_picks(picks, count, SS_CANDIDATES_MAX);
     out->candidates = calloc(count ? count : 1, sizeof *out->candidates);
     if (out->candidates == NULL) {
         free(picks);

@@ -12,14 +12,7 @@
 
 #include "content_moments_table.h"
 
-static long double ss__binom(unsigned n, int m) {
-    if (m < 0 || (unsigned)m > n)
-        return 0.0L;
-    long double r = 1.0L;
-    for (int i = 1; i <= m; i++)
-        r = r * (long double)(n - (unsigned)m + (unsigned)i) / (long double)i;
-    return r;
-}
+#include <string.h>
 
 static long double ss__ipow(long double x, int e) {
     long double r = 1.0L;
@@ -28,10 +21,9 @@ static long double ss__ipow(long double x, int e) {
     return r;
 }
 
-void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
-                         double *mean, double central[3]) {
-    /* powers P_j^e for j = 2..5 and e = 0..4, and C(n, m) for m = 0..8,
-     * each computed once */
+void ss__content_poly_init(ss__content_poly *cp, const double *p,
+                           unsigned levels) {
+    /* powers P_j^e for j = 2..5 and e = 0..4, each computed once */
     long double pw[4][5];
     for (unsigned j = 0; j < 4; j++) {
         long double s = 0.0L;
@@ -41,20 +33,33 @@ void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
         for (int e = 1; e < 5; e++)
             pw[j][e] = pw[j][e - 1] * s;
     }
-    long double binom[9];
-    for (int m = 0; m < 9; m++)
-        binom[m] = ss__binom(atoms, m);
-    long double raw[5] = {1.0L, 0, 0, 0, 0};
+    memset(cp, 0, sizeof *cp);
     size_t rows =
         sizeof ss__content_moment_rows / sizeof ss__content_moment_rows[0];
     for (size_t r = 0; r < rows; r++) {
         const int *e = ss__content_moment_rows[r].e;
-        long double term = binom[ss__content_moment_rows[r].m] *
-                           (long double)ss__content_moment_rows[r].count;
+        long double term = (long double)ss__content_moment_rows[r].count;
         for (int j = 0; j < 4; j++)
             term *= pw[j][e[j]];
-        raw[ss__content_moment_rows[r].k] += term;
+        cp->coef[ss__content_moment_rows[r].k][ss__content_moment_rows[r].m] +=
+            term;
     }
+}
+
+void ss__content_poly_moments(const ss__content_poly *cp, unsigned atoms,
+                              double *mean, double central[3]) {
+    long double binom[9];
+    binom[0] = 1.0L; /* C(n,m) = C(n,m−1)·(n−m+1)/m, zero once m > n */
+    for (int m = 1; m < 9; m++)
+        binom[m] = (unsigned)m > atoms
+                       ? 0.0L
+                       : binom[m - 1] *
+                             (long double)(atoms - (unsigned)m + 1u) /
+                             (long double)m;
+    long double raw[5] = {1.0L, 0, 0, 0, 0};
+    for (int k = 1; k < 5; k++)
+        for (int m = 0; m < 9; m++)
+            raw[k] += binom[m] * cp->coef[k][m];
     long double m1 = raw[1];
     long double m2 = raw[2] - m1 * m1;
     long double m3 = raw[3] - 3 * m1 * raw[2] + 2 * m1 * m1 * m1;
@@ -64,6 +69,13 @@ void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
     central[0] = (double)m2;
     central[1] = (double)m3;
     central[2] = (double)m4;
+}
+
+void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
+                         double *mean, double central[3]) {
+    ss__content_poly cp;
+    ss__content_poly_init(&cp, p, levels);
+    ss__content_poly_moments(&cp, atoms, mean, central);
 }
 
 ss_status ss_content_moments(unsigned atoms, const double *p, size_t len,

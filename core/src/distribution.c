@@ -97,10 +97,16 @@ static ss_status ss__range_check(unsigned atoms, unsigned rank, double pmax,
     return SS_OK;
 }
 
-static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
-                          ss_error *err) {
-    const ss_diagram_set *set = d->diagrams;
-    unsigned n = set->atoms, levels = set->levels;
+/* Fills the distributions ds[0..count) (one spectrum q of rank `rank`, each
+ * with its own diagram set) from ONE Schur table built for the largest atom
+ * number among them: the table of size <= n_max holds every partition of
+ * size <= n for each smaller n too (internal.h). */
+static ss_status ss__fill_many(ss_distribution *const *ds, size_t count,
+                               const double *q, unsigned rank, ss_error *err) {
+    unsigned n = 0, levels = ds[0]->diagrams->levels;
+    for (size_t k = 0; k < count; k++)
+        if (ds[k]->diagrams->atoms > n)
+            n = ds[k]->diagrams->atoms;
     unsigned M = rank - 1;
     ss__rank_table rt = {0, 0, NULL};
     void *table = NULL, *epow = NULL, *lfact = NULL, *llog = NULL;
@@ -145,29 +151,34 @@ static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
     /* log k! as a running sum of log k: positive terms, absolute error below
      * k·eps·log k! (under 1e-12 relative in P for the sizes each precision
      * is used for) */
-    long double log_scale = (long double)n * logl((long double)q[0]);
     long double log_e = logl(e);
-    long double total = 0.0L, mean = 0.0L;
     long double *lf = lfact, *ll = llog;
     lf[0] = ll[0] = 0.0L;
     for (size_t k = 1; k <= (size_t)n + levels; k++) {
         ll[k] = fast ? (long double)log((double)k) : logl((long double)k);
         lf[k] = lf[k - 1] + ll[k];
     }
-    if (fast)
-        ss__probabilities_d(d, td, &rt, rank, lf, ll, log_scale, log_e, &total,
-                            &mean);
-    else
-        ss__probabilities_ld(d, tl, &rt, rank, lf, ll, log_scale, log_e, &total,
-                             &mean);
-    long double var = 0.0L;
-    for (size_t i = 0; i < set->count; i++) {
-        long double dc = (long double)set->content[i] - mean;
-        var += (long double)d->probability[i] * dc * dc;
+    for (size_t k = 0; k < count; k++) {
+        ss_distribution *d = ds[k];
+        const ss_diagram_set *set = d->diagrams;
+        long double log_scale =
+            (long double)set->atoms * logl((long double)q[0]);
+        long double total = 0.0L, mean = 0.0L;
+        if (fast)
+            ss__probabilities_d(d, td, &rt, rank, lf, ll, log_scale, log_e,
+                                &total, &mean);
+        else
+            ss__probabilities_ld(d, tl, &rt, rank, lf, ll, log_scale, log_e,
+                                 &total, &mean);
+        long double var = 0.0L;
+        for (size_t i = 0; i < set->count; i++) {
+            long double dc = (long double)set->content[i] - mean;
+            var += (long double)d->probability[i] * dc * dc;
+        }
+        d->total = (double)total;
+        d->mean_content = (double)mean;
+        d->content_variance = (double)var;
     }
-    d->total = (double)total;
-    d->mean_content = (double)mean;
-    d->content_variance = (double)var;
     st = SS_OK;
 done:
     if (st != SS_OK)
@@ -180,11 +191,17 @@ done:
     return st;
 }
 
-ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
-                                  const double *p, size_t len,
-                                  const ss_budget *budget,
-                                  ss_distribution **out, ss_error *err) {
-    double q[SS_LEVELS_MAX];
+static ss_status ss__fill(ss_distribution *d, const double *q, unsigned rank,
+                          ss_error *err) {
+    return ss__fill_many(&d, 1, q, rank, err);
+}
+
+/* Validates (levels, atoms, p) and the work budget for the largest atom
+ * number; fills q (normalised, descending) and the rank. */
+static ss_status ss__distribution_check(unsigned atoms, unsigned levels,
+                                        const double *p, size_t len,
+                                        const ss_budget *b, double *q,
+                                        unsigned *rank_out, ss_error *err) {
     if (levels < SS_LEVELS_MIN || levels > SS_LEVELS_MAX)
         return ss_error_set(err, SS_EINVAL, "levels",
                             "levels must be an integer from %d to %d, got %u",
@@ -196,25 +213,29 @@ ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
     ss_status st = ss_spectrum_validate(p, len, levels, q, err);
     if (st != SS_OK)
         return st;
-    ss_budget b = budget ? *budget : ss_budget_default();
     unsigned rank = 0;
     while (rank < levels && q[rank] > 0.0)
         rank++;
     uint64_t cells = ss_diagram_table_cells(atoms, rank);
-    if (cells > b.max_table_cells)
+    if (cells > b->max_table_cells)
         return ss_error_set(err, SS_EBUDGET, "max_table_cells",
                             "%u atoms with %u non-zero eigenvalues need a "
                             "Schur table of %llu cells; the work budget "
                             "max_table_cells allows %llu",
                             atoms, rank, (unsigned long long)cells,
-                            (unsigned long long)b.max_table_cells);
-    st = ss__range_check(atoms, rank, q[0], err);
-    if (st != SS_OK)
-        return st;
+                            (unsigned long long)b->max_table_cells);
+    *rank_out = rank;
+    return ss__range_check(atoms, rank, q[0], err);
+}
+
+/* A distribution with its diagram set and arrays, values not yet filled. */
+static ss_status ss__distribution_shell(unsigned atoms, unsigned levels,
+                                        const double *q, const ss_budget *b,
+                                        ss_distribution **out, ss_error *err) {
     ss_distribution *d = calloc(1, sizeof *d);
     if (d == NULL)
         return ss_error_set(err, SS_ENOMEM, "", NULL);
-    st = ss_diagram_set_alloc(atoms, levels, &b, &d->diagrams, err);
+    ss_status st = ss_diagram_set_alloc(atoms, levels, b, &d->diagrams, err);
     if (st != SS_OK) {
         free(d);
         return st;
@@ -227,7 +248,61 @@ ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
         return ss_error_set(err, SS_ENOMEM, "", NULL);
     }
     memcpy(d->spectrum, q, levels * sizeof *q);
-    st = ss__fill(d, q, rank, err);
+    *out = d;
+    return SS_OK;
+}
+
+ss_status ss__distribution_compute_many(const unsigned *atoms, size_t count,
+                                        unsigned levels, const double *p,
+                                        const ss_budget *budget,
+                                        ss_distribution **outs, ss_error *err) {
+    if (count == 0)
+        return SS_OK;
+    unsigned nmax = 0;
+    for (size_t k = 0; k < count; k++)
+        nmax = atoms[k] > nmax ? atoms[k] : nmax;
+    for (size_t k = 0; k < count; k++)
+        if (atoms[k] < 1)
+            nmax = 0; /* let the check name the bad value */
+    ss_budget b = budget ? *budget : ss_budget_default();
+    double q[SS_LEVELS_MAX];
+    unsigned rank = 0;
+    ss_status st =
+        ss__distribution_check(nmax, levels, p, levels, &b, q, &rank, err);
+    if (st != SS_OK)
+        return st;
+    ss_distribution **ds = calloc(count, sizeof *ds);
+    if (ds == NULL)
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    for (size_t k = 0; k < count && st == SS_OK; k++)
+        st = ss__distribution_shell(atoms[k], levels, q, &b, &ds[k], err);
+    if (st == SS_OK)
+        st = ss__fill_many(ds, count, q, rank, err);
+    for (size_t k = 0; k < count; k++) {
+        if (st == SS_OK)
+            outs[k] = ds[k];
+        else
+            ss_distribution_free(ds[k]);
+    }
+    free(ds);
+    return st;
+}
+
+ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
+                                  const double *p, size_t len,
+                                  const ss_budget *budget,
+                                  ss_distribution **out, ss_error *err) {
+    double q[SS_LEVELS_MAX];
+    ss_budget b = budget ? *budget : ss_budget_default();
+    unsigned rank = 0;
+    ss_status st =
+        ss__distribution_check(atoms, levels, p, len, &b, q, &rank, err);
+    if (st != SS_OK)
+        return st;
+    ss_distribution *d = NULL;
+    st = ss__distribution_shell(atoms, levels, q, &b, &d, err);
+    if (st == SS_OK)
+        st = ss__fill(d, q, rank, err);
     if (st != SS_OK) {
         ss_distribution_free(d);
         return st;

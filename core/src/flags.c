@@ -31,8 +31,10 @@ ss_flag *ss__flag_add(ss_analysis *a, ss_flag_code code, int run,
 void ss__flag_number(ss_flag *f, const char *name, double value) {
     if (f == NULL || f->number_count >= SS_FLAG_NUMBERS_MAX)
         return;
-    snprintf(f->numbers[f->number_count].name, sizeof f->numbers[0].name, "%s",
-             name);
+    char *dst = f->numbers[f->number_count].name;
+    size_t len = strnlen(name, sizeof f->numbers[0].name - 1);
+    memcpy(dst, name, len);
+    dst[len] = '\0';
     f->numbers[f->number_count].value = value;
     f->number_count++;
 }

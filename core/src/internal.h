@@ -70,6 +70,14 @@ long double ss__log_tableaux(const uint32_t *rows, unsigned levels,
  * spectrum p (levels entries, validated).  The diagram set is kept; the
  * budget was checked when the distribution was made (the table only shrinks
  * when eigenvalues vanish). */
+/* The exact laws for several atom numbers at one spectrum p (levels
+ * values), from one Schur table built for the largest: outs[k] for
+ * atoms[k].  Same errors as ss_distribution_compute (the budget is that of
+ * the largest atom number); on failure nothing is allocated. */
+ss_status ss__distribution_compute_many(const unsigned *atoms, size_t count,
+                                        unsigned levels, const double *p,
+                                        const ss_budget *budget,
+                                        ss_distribution **outs, ss_error *err);
 ss_status ss__distribution_update(ss_distribution *d, const double *p,
                                   ss_error *err);
 
@@ -93,6 +101,16 @@ void ss__point_spectrum(unsigned d, const double *theta, int use_p3, double *p);
  * content sum at spectrum p (closed form through P2..P5). */
 void ss__content_moments(unsigned atoms, const double *p, unsigned levels,
                          double *mean, double central[3]);
+/* The same in two steps, for many atom numbers at one spectrum: coef[k][m]
+ * is the coefficient of C(n, m) in E[c^k] (the spectrum-dependent part,
+ * computed once), then each atom number costs nine binomials. */
+typedef struct {
+    long double coef[5][9];
+} ss__content_poly;
+void ss__content_poly_init(ss__content_poly *cp, const double *p,
+                           unsigned levels);
+void ss__content_poly_moments(const ss__content_poly *cp, unsigned atoms,
+                              double *mean, double central[3]);
 
 /* moments.c — per-run statistics in content units and the GLS fit. */
 typedef struct {

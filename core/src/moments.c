@@ -155,6 +155,8 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
         /* spectrum at which the summary runs' higher moments are taken */
         double p[SS_LEVELS_MAX];
         ss__point_spectrum(d, theta, npar == 2, p);
+        ss__content_poly cp;
+        ss__content_poly_init(&cp, p, d);
         for (size_t r = 0; r < R; r++) {
             double m2, m3, m4;
             if (rs[r].per_shot) {
@@ -172,7 +174,7 @@ ss_status ss__moments_fit(unsigned d, ss__run_stats *rs, size_t R, ss__fit *fit,
                  * so an estimate on the boundary (a pure state has no
                  * spread) cannot make a run look infinitely precise */
                 double mean, c[3];
-                ss__content_moments(rs[r].atoms, p, d, &mean, c);
+                ss__content_poly_moments(&cp, rs[r].atoms, &mean, c);
                 double skew = 0.0, kurt = 3.0; /* Gaussian when c[0] = 0 */
                 if (c[0] > 1e-12) {
                     skew = c[1] / pow(c[0], 1.5);
