@@ -1,173 +1,253 @@
 /*
- * api_render.c — renders an ss_analysis as JSON: the spectrum with its
+ * api_render.c — renders an ss_analysis as JSON text: the spectrum with its
  * intervals, power sums, covariance, flags with their numbers, feasible
  * ranges, the naive reading, per-run candidates with their degenerate
- * groups, and the fit diagnostics.  Owns nothing beyond the document it
+ * groups, and the fit diagnostics.  Owns nothing beyond the text it
  * returns.
  */
 #include "api_render.h"
 
 #include <math.h>
+#include <stdlib.h>
 
-#include "cli_json.h"
+#include "json_text.h"
 
-static json_t *rnd_real(double x) {
-    return isfinite(x) ? json_real(x) : json_null();
+static void rnd_value_se(jt_writer *w, const char *key, double v, double se) {
+    jt_key(w, key);
+    jt_object_begin(w);
+    jt_key(w, "value");
+    jt_number(w, v);
+    jt_key(w, "stderr");
+    jt_number(w, se);
+    jt_object_end(w);
 }
 
-static json_t *rnd_reals(const double *x, size_t n) {
-    json_t *arr = json_array();
-    for (size_t i = 0; arr && i < n; i++)
-        json_array_append_new(arr, rnd_real(x[i]));
-    return arr;
+/* A Young diagram as its non-zero row lengths. */
+static void rnd_diagram(jt_writer *w, const uint32_t *rows, unsigned d) {
+    jt_array_begin(w);
+    for (unsigned i = 0; i < d && rows[i] != 0; i++)
+        jt_integer(w, rows[i]);
+    jt_array_end(w);
 }
 
-static json_t *rnd_value_se(double v, double se) {
-    return json_pack("{s:o,s:o}", "value", rnd_real(v), "stderr", rnd_real(se));
-}
-
-static json_t *rnd_flags(const ss_analysis *a) {
-    json_t *arr = json_array();
-    for (size_t i = 0; arr && i < a->flag_count; i++) {
-        const ss_flag *f = &a->flags[i];
-        json_t *o = json_pack("{s:s,s:s}", "code", ss_flag_name(f->code),
-                              "message", f->message);
-        if (o == NULL)
-            continue;
-        json_object_set_new(o, "run",
-                            f->run >= 0 ? json_integer(f->run) : json_null());
-        for (unsigned k = 0; k < f->number_count; k++)
-            json_object_set_new(o, f->numbers[k].name,
-                                rnd_real(f->numbers[k].value));
-        json_array_append_new(arr, o);
-    }
-    return arr;
-}
-
-static json_t *rnd_run(const ss_run_result *r, unsigned d) {
-    json_t *cands = json_array(), *groups = json_array();
-    for (size_t k = 0; cands && k < r->candidate_count; k++) {
-        const ss_candidate *c = &r->candidates[k];
-        json_array_append_new(
-            cands,
-            json_pack("{s:o,s:I,s:o,s:o,s:o,s:o}", "diagram",
-                      cli_json_diagram(c->rows, d), "content",
-                      (json_int_t)c->content, "energy", rnd_real(c->energy),
-                      "z", rnd_real(c->z), "probability",
-                      rnd_real(c->probability), "spectrum_estimate",
-                      rnd_reals(c->spectrum_estimate, d)));
-    }
-    for (unsigned g = 1; groups && g <= r->degenerate_group_count; g++) {
-        json_t *grp = json_array();
-        for (size_t k = 0; grp && k < r->candidate_count; k++)
-            if (r->candidates[k].degenerate_group == g)
-                json_array_append_new(
-                    grp, cli_json_diagram(r->candidates[k].rows, d));
-        json_array_append_new(groups, grp);
-    }
-    return json_pack("{s:i,s:I,s:o,s:o,s:o,s:I,s:o,s:o}", "atoms",
-                     (int)r->atoms, "shots", (json_int_t)r->shots,
-                     "mean_energy", rnd_real(r->mean_energy), "energy_variance",
-                     rnd_real(r->energy_variance), "window_sd",
-                     rnd_real(r->window_sd), "candidates_in_window",
-                     (json_int_t)r->window_count, "candidates", cands,
-                     "degenerate_groups", groups);
-}
-
-static json_t *rnd_diagnostics(const ss_analysis *a) {
+static void rnd_spectrum(jt_writer *w, const ss_analysis *a) {
     unsigned d = a->levels;
-    json_t *o = json_pack(
-        "{s:o,s:i,s:o,s:o}", "chi2", rnd_real(a->diagnostics.chi2), "dof",
-        a->diagnostics.dof, "p_value", rnd_real(a->diagnostics.p_value),
-        "distance_se", rnd_real(a->diagnostics.distance_se));
-    if (o == NULL)
-        return NULL;
-    if (a->method == SS_METHOD_LIKELIHOOD) {
-        json_object_set_new(o, "log_likelihood",
-                            rnd_real(a->diagnostics.log_likelihood));
-        json_object_set_new(o, "iterations",
-                            json_integer(a->diagnostics.iterations));
-        json_object_set_new(o, "fisher_rank",
-                            json_integer(a->diagnostics.fisher_rank));
-        json_object_set_new(o, "fisher_condition",
-                            rnd_real(a->diagnostics.fisher_condition));
-        json_object_set_new(o, "cramer_rao_stderr",
-                            rnd_reals(a->diagnostics.cramer_rao_stderr, d));
+    jt_key(w, "spectrum");
+    jt_object_begin(w);
+    jt_key(w, "interval");
+    jt_string(w, ss_interval_name(a->interval));
+    jt_key(w, "values");
+    jt_numbers(w, a->values, d);
+    jt_key(w, "stderr");
+    jt_numbers(w, a->stderr_, d);
+    jt_key(w, "lower");
+    jt_numbers(w, a->lower, d);
+    jt_key(w, "upper");
+    jt_numbers(w, a->upper, d);
+    jt_key(w, "estimate");
+    jt_string(w, a->spectrum_is_max_entropy          ? "maximum-entropy"
+                 : a->method == SS_METHOD_LIKELIHOOD ? "maximum-likelihood"
+                                                     : "moments");
+    jt_object_end(w);
+    rnd_value_se(w, "purity", a->p2, a->p2_stderr);
+    jt_key(w, "power_sums");
+    jt_object_begin(w);
+    rnd_value_se(w, "p2", a->p2, a->p2_stderr);
+    if (a->p3_determined)
+        rnd_value_se(w, "p3", a->p3, a->p3_stderr);
+    else {
+        jt_key(w, "p3");
+        jt_null(w);
     }
-    if (a->diagnostics.bootstrap_replicates > 0)
-        json_object_set_new(
-            o, "bootstrap",
-            json_pack("{s:i,s:o,s:o}", "replicates",
-                      (int)a->diagnostics.bootstrap_replicates, "stderr",
-                      rnd_reals(a->diagnostics.bootstrap_stderr, d),
-                      "p2_stderr",
-                      rnd_real(a->diagnostics.bootstrap_p2_stderr)));
-    return o;
+    jt_key(w, "p2_p3_covariance");
+    jt_number(w, a->p3_determined ? a->p2_p3_covariance : nan(""));
+    jt_object_end(w);
+    jt_key(w, "covariance");
+    jt_array_begin(w);
+    for (unsigned i = 0; i < d; i++)
+        jt_numbers(w, a->covariance + i * d, d);
+    jt_array_end(w);
+}
+
+static void rnd_flags(jt_writer *w, const ss_analysis *a) {
+    jt_key(w, "flags");
+    jt_array_begin(w);
+    for (size_t i = 0; i < a->flag_count; i++) {
+        const ss_flag *f = &a->flags[i];
+        jt_object_begin(w);
+        jt_key(w, "code");
+        jt_string(w, ss_flag_name(f->code));
+        jt_key(w, "message");
+        jt_string(w, f->message);
+        jt_key(w, "run");
+        if (f->run >= 0)
+            jt_integer(w, f->run);
+        else
+            jt_null(w);
+        for (unsigned k = 0; k < f->number_count; k++) {
+            jt_key(w, f->numbers[k].name);
+            jt_number(w, f->numbers[k].value);
+        }
+        jt_object_end(w);
+    }
+    jt_array_end(w);
+}
+
+static void rnd_run(jt_writer *w, const ss_run_result *r, unsigned d) {
+    jt_object_begin(w);
+    jt_key(w, "atoms");
+    jt_integer(w, r->atoms);
+    jt_key(w, "shots");
+    jt_integer(w, (int64_t)r->shots);
+    jt_key(w, "mean_energy");
+    jt_number(w, r->mean_energy);
+    jt_key(w, "energy_variance");
+    jt_number(w, r->energy_variance);
+    jt_key(w, "window_sd");
+    jt_number(w, r->window_sd);
+    jt_key(w, "candidates_in_window");
+    jt_integer(w, (int64_t)r->window_count);
+    jt_key(w, "candidates");
+    jt_array_begin(w);
+    for (size_t k = 0; k < r->candidate_count; k++) {
+        const ss_candidate *c = &r->candidates[k];
+        jt_object_begin(w);
+        jt_key(w, "diagram");
+        rnd_diagram(w, c->rows, d);
+        jt_key(w, "content");
+        jt_integer(w, c->content);
+        jt_key(w, "energy");
+        jt_number(w, c->energy);
+        jt_key(w, "z");
+        jt_number(w, c->z);
+        jt_key(w, "probability");
+        jt_number(w, c->probability);
+        jt_key(w, "spectrum_estimate");
+        jt_numbers(w, c->spectrum_estimate, d);
+        jt_object_end(w);
+    }
+    jt_array_end(w);
+    jt_key(w, "degenerate_groups");
+    jt_array_begin(w);
+    for (unsigned g = 1; g <= r->degenerate_group_count; g++) {
+        jt_array_begin(w);
+        for (size_t k = 0; k < r->candidate_count; k++)
+            if (r->candidates[k].degenerate_group == g)
+                rnd_diagram(w, r->candidates[k].rows, d);
+        jt_array_end(w);
+    }
+    jt_array_end(w);
+    jt_object_end(w);
+}
+
+static void rnd_diagnostics(jt_writer *w, const ss_analysis *a) {
+    unsigned d = a->levels;
+    jt_key(w, "diagnostics");
+    jt_object_begin(w);
+    jt_key(w, "chi2");
+    jt_number(w, a->diagnostics.chi2);
+    jt_key(w, "dof");
+    jt_integer(w, a->diagnostics.dof);
+    jt_key(w, "p_value");
+    jt_number(w, a->diagnostics.p_value);
+    jt_key(w, "distance_se");
+    jt_number(w, a->diagnostics.distance_se);
+    if (a->method == SS_METHOD_LIKELIHOOD) {
+        jt_key(w, "log_likelihood");
+        jt_number(w, a->diagnostics.log_likelihood);
+        jt_key(w, "iterations");
+        jt_integer(w, a->diagnostics.iterations);
+        jt_key(w, "fisher_rank");
+        jt_integer(w, a->diagnostics.fisher_rank);
+        jt_key(w, "fisher_condition");
+        jt_number(w, a->diagnostics.fisher_condition);
+        jt_key(w, "cramer_rao_stderr");
+        jt_numbers(w, a->diagnostics.cramer_rao_stderr, d);
+    }
+    if (a->diagnostics.bootstrap_replicates > 0) {
+        jt_key(w, "bootstrap");
+        jt_object_begin(w);
+        jt_key(w, "replicates");
+        jt_integer(w, (int64_t)a->diagnostics.bootstrap_replicates);
+        jt_key(w, "stderr");
+        jt_numbers(w, a->diagnostics.bootstrap_stderr, d);
+        jt_key(w, "p2_stderr");
+        jt_number(w, a->diagnostics.bootstrap_p2_stderr);
+        jt_object_end(w);
+    }
+    jt_object_end(w);
+}
+
+char *api_render_analysis_text(const ss_analysis *a, const ss_calibration *cal,
+                               const char *label, size_t *len, ss_error *err) {
+    unsigned d = a->levels;
+    jt_writer w;
+    jt_init(&w, 4096 + 2048 * a->run_count);
+    jt_object_begin(&w);
+    jt_key(&w, "levels");
+    jt_integer(&w, d);
+    jt_key(&w, "method");
+    jt_string(&w, ss_method_name(a->method));
+    jt_key(&w, "confidence");
+    jt_number(&w, a->confidence);
+    if (a->has_spectrum)
+        rnd_spectrum(&w, a);
+    if (a->has_feasible_ranges) {
+        jt_key(&w, "feasible_ranges");
+        jt_array_begin(&w);
+        for (unsigned i = 0; i < d; i++) {
+            jt_array_begin(&w);
+            jt_number(&w, a->feasible_lower[i]);
+            jt_number(&w, a->feasible_upper[i]);
+            jt_array_end(&w);
+        }
+        jt_array_end(&w);
+    }
+    if (a->has_naive) {
+        jt_key(&w, "naive");
+        jt_object_begin(&w);
+        jt_key(&w, "spectrum");
+        jt_numbers(&w, a->naive, d);
+        jt_key(&w, "reading");
+        jt_string(&w, "λ/n of the diagram whose energy is nearest each run's "
+                      "mean, shot-weighted over runs");
+        jt_object_end(&w);
+    }
+    rnd_flags(&w, a);
+    jt_key(&w, "runs");
+    jt_array_begin(&w);
+    for (size_t r = 0; r < a->run_count; r++)
+        rnd_run(&w, &a->runs[r], d);
+    jt_array_end(&w);
+    rnd_diagnostics(&w, a);
+    jt_key(&w, "unit");
+    jt_string(&w, cal->unit);
+    jt_key(&w, "note");
+    jt_string(&w, "The spectrum is a statistical estimate from finite shots: "
+                  "values with standard errors and intervals at the stated "
+                  "confidence; candidate probabilities are model values at "
+                  "the estimate.");
+    if (label != NULL && label[0] != '\0') {
+        jt_key(&w, "label");
+        jt_string(&w, label);
+    }
+    jt_object_end(&w);
+    char *text = jt_finish(&w, len);
+    if (text == NULL)
+        ss_error_set(err, SS_ENOMEM, "", "no memory for the result");
+    return text;
 }
 
 json_t *api_render_analysis(const ss_analysis *a, const ss_calibration *cal,
                             ss_error *err) {
-    unsigned d = a->levels;
-    json_t *doc = json_pack("{s:i,s:s,s:o}", "levels", (int)d, "method",
-                            ss_method_name(a->method), "confidence",
-                            rnd_real(a->confidence));
-    if (doc == NULL) {
-        ss_error_set(err, SS_ENOMEM, "", "no memory for the result");
+    char *text = api_render_analysis_text(a, cal, NULL, NULL, err);
+    if (text == NULL)
         return NULL;
-    }
-    if (a->has_spectrum) {
-        json_object_set_new(
-            doc, "spectrum",
-            json_pack("{s:s,s:o,s:o,s:o,s:o,s:s}", "interval",
-                      ss_interval_name(a->interval), "values",
-                      rnd_reals(a->values, d), "stderr",
-                      rnd_reals(a->stderr_, d), "lower", rnd_reals(a->lower, d),
-                      "upper", rnd_reals(a->upper, d), "estimate",
-                      a->spectrum_is_max_entropy          ? "maximum-entropy"
-                      : a->method == SS_METHOD_LIKELIHOOD ? "maximum-likelihood"
-                                                          : "moments"));
-        json_object_set_new(doc, "purity", rnd_value_se(a->p2, a->p2_stderr));
-        json_object_set_new(
-            doc, "power_sums",
-            json_pack("{s:o,s:o,s:o}", "p2", rnd_value_se(a->p2, a->p2_stderr),
-                      "p3",
-                      a->p3_determined ? rnd_value_se(a->p3, a->p3_stderr)
-                                       : json_null(),
-                      "p2_p3_covariance",
-                      a->p3_determined ? rnd_real(a->p2_p3_covariance)
-                                       : json_null()));
-        json_t *cov = json_array();
-        for (unsigned i = 0; cov && i < d; i++)
-            json_array_append_new(cov, rnd_reals(a->covariance + i * d, d));
-        json_object_set_new(doc, "covariance", cov);
-    }
-    if (a->has_feasible_ranges) {
-        json_t *fr = json_array();
-        for (unsigned i = 0; fr && i < d; i++)
-            json_array_append_new(
-                fr, json_pack("[o,o]", rnd_real(a->feasible_lower[i]),
-                              rnd_real(a->feasible_upper[i])));
-        json_object_set_new(doc, "feasible_ranges", fr);
-    }
-    if (a->has_naive)
-        json_object_set_new(doc, "naive",
-                            json_pack("{s:o,s:s}", "spectrum",
-                                      rnd_reals(a->naive, d), "reading",
-                                      "λ/n of the diagram whose energy is "
-                                      "nearest each run's mean, "
-                                      "shot-weighted over runs"));
-    json_object_set_new(doc, "flags", rnd_flags(a));
-    json_t *runs = json_array();
-    for (size_t r = 0; runs && r < a->run_count; r++)
-        json_array_append_new(runs, rnd_run(&a->runs[r], d));
-    json_object_set_new(doc, "runs", runs);
-    json_object_set_new(doc, "diagnostics", rnd_diagnostics(a));
-    json_object_set_new(doc, "unit", json_string(cal->unit));
-    json_object_set_new(
-        doc, "note",
-        json_string("The spectrum is a statistical estimate from finite "
-                    "shots: values with standard errors and intervals at the "
-                    "stated confidence; candidate probabilities are model "
-                    "values at the estimate."));
+    json_error_t jerr;
+    json_t *doc = json_loads(text, 0, &jerr);
+    free(text);
+    if (doc == NULL)
+        ss_error_set(err, SS_EINTERNAL, "",
+                     "the rendered result does not read back: %s", jerr.text);
     return doc;
 }

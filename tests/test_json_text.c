@@ -1,0 +1,215 @@
+/*
+ * test_json_text.c — the JSON text writer (server/json_text.c).
+ *
+ * Numbers are held against glibc's printf("%.17g") — an outside oracle that
+ * converts exactly (C17 7.21.6.1 asks for correct rounding up to
+ * DECIMAL_DIG digits) — followed by jansson's tidying as jansson documents
+ * its real output (JSON_REAL_PRECISION; ".0" for integral text, exponent
+ * without '+' or leading zeros [the tidying rules from memory of jansson's
+ * dump.c]): millions of doubles drawn log-uniformly over 1e-15..1e20 with
+ * both signs, random bit patterns, and the edges where the fast path turns
+ * (powers of ten and their neighbours, integers, halves).  Every text must
+ * also read back (strtod) to the same double bit for bit.  Documents are
+ * parsed back with jansson and compared member by member.
+ */
+#include <criterion/criterion.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "json_text.h"
+
+/* printf's %.17g, then jansson's tidying, written independently of the
+ * writer: tokens split at 'e'. */
+static void oracle(double x, char *out, size_t cap) {
+    char raw[40];
+    snprintf(raw, sizeof raw, "%.17g", x);
+    char *e = strchr(raw, 'e');
+    if (e == NULL) {
+        snprintf(out, cap, "%s%s", raw, strchr(raw, '.') ? "" : ".0");
+        return;
+    }
+    *e = '\0';
+    long ex = strtol(e + 1, NULL, 10);
+    snprintf(out, cap, "%se%ld", raw, ex);
+}
+
+static uint64_t rng_state = 0x9e3779b97f4a7c15ull;
+static uint64_t rng_next(void) { /* splitmix64 (Steele, Lea, Flood 2014) */
+    uint64_t z = (rng_state += 0x9e3779b97f4a7c15ull);
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ull;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebull;
+    return z ^ (z >> 31);
+}
+
+static void check_one(double x) {
+    char got[32], want[96];
+    json_text_number(x, got);
+    oracle(x, want, sizeof want);
+    cr_assert_str_eq(got, want, "x = %a", x);
+    double back = strtod(got, NULL);
+    cr_assert(memcmp(&back, &x, sizeof x) == 0, "%s does not read back", got);
+}
+
+Test(json_text, numbers_log_uniform) {
+    for (int i = 0; i < 1000000; i++) {
+        double u = (double)(rng_next() >> 11) * 0x1p-53;
+        double x = pow(10.0, -15.0 + 35.0 * u);
+        check_one(rng_next() & 1 ? -x : x);
+    }
+}
+
+Test(json_text, numbers_random_bits) {
+    for (int i = 0; i < 300000; i++) {
+        uint64_t b = rng_next();
+        double x;
+        memcpy(&x, &b, sizeof x);
+        if (!isfinite(x))
+            continue;
+        check_one(x);
+    }
+}
+
+Test(json_text, numbers_edges) {
+    for (int k = -20; k <= 22; k++) {
+        double p = pow(10.0, k);
+        check_one(p);
+        check_one(nextafter(p, 0.0));
+        check_one(nextafter(p, INFINITY));
+        check_one(-p);
+    }
+    for (int i = -3000; i <= 3000; i++) {
+        check_one((double)i);
+        check_one(i / 2.0);
+        check_one(i / 24.0); /* λ/n values */
+    }
+    const double specials[] = {0.0,
+                               -0.0,
+                               0.1,
+                               0.95,
+                               127.3,
+                               1.0 / 3.0,
+                               9007199254740992.0,
+                               9007199254740993.0,
+                               99999999999999999.0,
+                               1e17,
+                               5e-324,
+                               2.2250738585072014e-308,
+                               1.7976931348623157e308};
+    for (size_t i = 0; i < sizeof specials / sizeof specials[0]; i++)
+        check_one(specials[i]);
+    char t[32];
+    json_text_number(NAN, t);
+    cr_assert_str_eq(t, "null");
+    json_text_number(-INFINITY, t);
+    cr_assert_str_eq(t, "null");
+}
+
+/* A document with nesting, every value kind and strings that need escapes,
+ * parsed back by jansson (strict: it rejects control characters in strings
+ * and trailing commas). */
+Test(json_text, document_reads_back) {
+    jt_writer w;
+    jt_init(&w, 16);
+    jt_object_begin(&w);
+    jt_key(&w, "text");
+    jt_string(&w, "quote \" backslash \\ tab \t newline \n bell \a λ");
+    jt_key(&w, "list");
+    jt_array_begin(&w);
+    jt_integer(&w, -9223372036854775807LL - 1);
+    jt_integer(&w, 0);
+    jt_number(&w, 0.25);
+    jt_number(&w, NAN);
+    jt_null(&w);
+    jt_bool(&w, 1);
+    jt_array_begin(&w);
+    jt_array_end(&w);
+    jt_object_begin(&w);
+    jt_object_end(&w);
+    jt_array_end(&w);
+    jt_key(&w, "raw");
+    jt_raw(&w, "{\"a\":[1,2]}", 11);
+    jt_key(&w, "n");
+    jt_numbers(&w, (const double[]){1.5, -2e-7, 400.0}, 3);
+    jt_object_end(&w);
+    size_t len = 0;
+    char *text = jt_finish(&w, &len);
+    cr_assert_not_null(text);
+    cr_assert_eq(strlen(text), len);
+    json_error_t jerr;
+    json_t *doc = json_loads(text, JSON_REJECT_DUPLICATES, &jerr);
+    cr_assert_not_null(doc, "%s: %s", text, jerr.text);
+    cr_assert_str_eq(json_string_value(json_object_get(doc, "text")),
+                     "quote \" backslash \\ tab \t newline \n bell \a λ");
+    json_t *list = json_object_get(doc, "list");
+    cr_assert_eq(json_array_size(list), 8);
+    cr_assert_eq(json_integer_value(json_array_get(list, 0)), INT64_MIN);
+    cr_assert_eq(json_real_value(json_array_get(list, 2)), 0.25);
+    cr_assert(json_is_null(json_array_get(list, 3)));
+    cr_assert(json_is_true(json_array_get(list, 5)));
+    cr_assert_eq(json_integer_value(json_array_get(
+                     json_object_get(json_object_get(doc, "raw"), "a"), 1)),
+                 2);
+    cr_assert_eq(json_real_value(json_array_get(json_object_get(doc, "n"), 1)),
+                 -2e-7);
+    cr_assert(strstr(text, "400.0") != NULL, "%s", text);
+    json_decref(doc);
+    free(text);
+}
+
+/* Misuse is reported by jt_finish, not written: an unclosed object, a key
+ * without its value, a value closing an object early. */
+Test(json_text, misuse_fails) {
+    jt_writer w;
+    jt_init(&w, 0);
+    jt_object_begin(&w);
+    cr_assert_null(jt_finish(&w, NULL));
+    jt_init(&w, 0);
+    jt_object_begin(&w);
+    jt_key(&w, "k");
+    jt_object_end(&w);
+    cr_assert_null(jt_finish(&w, NULL));
+    jt_init(&w, 0);
+    jt_array_end(&w);
+    cr_assert_null(jt_finish(&w, NULL));
+    jt_init(&w, 0);
+    for (int i = 0; i <= JT_DEPTH_MAX; i++)
+        jt_array_begin(&w);
+    cr_assert_null(jt_finish(&w, NULL));
+}
+
+/* json_text_dump gives json_dumps(JSON_COMPACT | JSON_REAL_PRECISION(17))
+ * byte for byte (jansson is the oracle here), on a document with every
+ * kind of value, strings with NUL and control bytes, and 2000 random
+ * reals. */
+Test(json_text, dump_equals_jansson) {
+    json_t *doc = json_object();
+    json_object_set_new(doc, "s", json_stringn("a\0b\x01\"\\/λ", 9));
+    json_object_set_new(doc, "i", json_integer(-42));
+    json_object_set_new(doc, "t", json_true());
+    json_object_set_new(doc, "f", json_false());
+    json_object_set_new(doc, "n", json_null());
+    json_object_set_new(doc, "empty", json_object());
+    json_t *arr = json_array();
+    for (int i = 0; i < 2000; i++) {
+        double u = (double)(rng_next() >> 11) * 0x1p-53;
+        json_array_append_new(arr,
+                              json_real((u - 0.5) * pow(10.0, 40 * u - 20)));
+    }
+    json_array_append_new(arr, json_real(400.0));
+    json_array_append_new(arr, json_array());
+    json_object_set_new(doc, "reals", arr);
+    char *want = json_dumps(doc, JSON_COMPACT | JSON_REAL_PRECISION(17));
+    size_t len = 0;
+    char *got = json_text_dump(doc, &len);
+    cr_assert_not_null(got);
+    cr_assert_eq(len, strlen(want));
+    cr_assert(memcmp(got, want, len) == 0, "got %.200s\nwant %.200s", got,
+              want);
+    free(got);
+    free(want);
+    json_decref(doc);
+}
