@@ -5,12 +5,15 @@
 # update` only when something is missing), builds the `swapspec` executable
 # in build/, and starts the HTTP service on its embedded default: loopback
 # only (127.0.0.1:8080, no tokens needed there) with the SQLite store
-# ./var/swapspec.db.  Once it answers, the sample analysis of the invented
-# Quillfeather lab (samples/analysis-request.json) is posted to it, and the
-# stored record is printed on stdout.  The service keeps running in the
-# foreground until Ctrl-C (SIGINT) or SIGTERM, which it handles by finishing
-# the requests in flight.  SWAPSPEC_LISTEN / SWAPSPEC_DATA override the
-# address and the store.
+# ./var/swapspec.db.  Once it answers, the sample week of the invented
+# Quillfeather lab (samples/week/: calibration versions, then fourteen runs)
+# is posted to it with samples/post-week.sh, one line per request on stdout;
+# rerunning the script finds and replays them instead of storing them twice.
+# A build whose route table has no calibration endpoints yet posts the single
+# sample analysis (samples/analysis-request.json) instead and prints the
+# stored record.  The service keeps running in the foreground until Ctrl-C
+# (SIGINT) or SIGTERM, which it handles by finishing the requests in flight.
+# SWAPSPEC_LISTEN / SWAPSPEC_DATA override the address and the store.
 set -euo pipefail
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
 
@@ -49,11 +52,17 @@ for _ in $(seq 1 50); do
     curl -sf "http://$listen/healthz" >/dev/null 2>&1 && break
     sleep 0.1
 done
-echo "run-demo: posting samples/analysis-request.json to /v1/analyses" >&2
-curl -sf -X POST -H 'Content-Type: application/json' \
-    -H 'Idempotency-Key: "demo-quillfeather-boxtrap-a"' \
-    --data-binary @samples/analysis-request.json \
-    "http://$listen/v1/analyses" || echo "run-demo: the post failed" >&2
-echo >&2
+if ./build/swapspec routes | grep -q '/v1/calibrations/{name}'; then
+    echo "run-demo: posting the sample week (samples/post-week.sh)" >&2
+    SWAPSPEC_TOKEN='' bash samples/post-week.sh "http://$listen" ||
+        echo "run-demo: some posts failed (see the lines above)" >&2
+else
+    echo "run-demo: posting samples/analysis-request.json to /v1/analyses" >&2
+    curl -sf -X POST -H 'Content-Type: application/json' \
+        -H 'Idempotency-Key: "demo-quillfeather-boxtrap-a"' \
+        --data-binary @samples/analysis-request.json \
+        "http://$listen/v1/analyses" || echo "run-demo: the post failed" >&2
+    echo >&2
+fi
 echo "run-demo: serving on http://$listen (Ctrl-C stops it)" >&2
 wait "$pid"

@@ -10,8 +10,6 @@
 #include <math.h>
 #include <stdlib.h>
 
-#include "json_text.h"
-
 static void rnd_value_se(jt_writer *w, const char *key, double v, double se) {
     jt_key(w, key);
     jt_object_begin(w);
@@ -179,7 +177,9 @@ static void rnd_diagnostics(jt_writer *w, const ss_analysis *a) {
 }
 
 char *api_render_analysis_text(const ss_analysis *a, const ss_calibration *cal,
-                               const char *label, size_t *len, ss_error *err) {
+                               const char *label, api_render_more more,
+                               const void *more_ctx, size_t *len,
+                               ss_error *err) {
     unsigned d = a->levels;
     jt_writer w;
     jt_init(&w, 4096 + 2048 * a->run_count);
@@ -231,23 +231,11 @@ char *api_render_analysis_text(const ss_analysis *a, const ss_calibration *cal,
         jt_key(&w, "label");
         jt_string(&w, label);
     }
+    if (more != NULL)
+        more(&w, more_ctx);
     jt_object_end(&w);
     char *text = jt_finish(&w, len);
     if (text == NULL)
         ss_error_set(err, SS_ENOMEM, "", "no memory for the result");
     return text;
-}
-
-json_t *api_render_analysis(const ss_analysis *a, const ss_calibration *cal,
-                            ss_error *err) {
-    char *text = api_render_analysis_text(a, cal, NULL, NULL, err);
-    if (text == NULL)
-        return NULL;
-    json_error_t jerr;
-    json_t *doc = json_loads(text, 0, &jerr);
-    free(text);
-    if (doc == NULL)
-        ss_error_set(err, SS_EINTERNAL, "",
-                     "the rendered result does not read back: %s", jerr.text);
-    return doc;
 }

@@ -6,8 +6,7 @@
  *
  * The result is written straight to text (json_text.h): the service
  * renders one per request, and building a jansson tree first cost more
- * than the analysis.  api_render_analysis parses that text back for
- * callers that amend the document.
+ * than the analysis.
  */
 #ifndef SWAPSPEC_API_RENDER_H
 #define SWAPSPEC_API_RENDER_H
@@ -16,15 +15,18 @@
 
 #include "swapspec.h"
 
-/* The result text (compact, NUL-terminated; release with free), or NULL
- * with err set (SS_ENOMEM).  label: a trailing "label" member when not
- * NULL and not empty. */
-char *api_render_analysis_text(const ss_analysis *a, const ss_calibration *cal,
-                               const char *label, size_t *len, ss_error *err);
+#include "json_text.h"
 
-/* The same document as a new jansson object (no label), or NULL with err
- * set (SS_ENOMEM). */
-json_t *api_render_analysis(const ss_analysis *a, const ss_calibration *cal,
-                            ss_error *err);
+/* Writes members of the caller's own (jt_key + value, any number) at the
+ * end of the result object. */
+typedef void (*api_render_more)(jt_writer *w, const void *ctx);
+
+/* The result text (compact, NUL-terminated; release with free), or NULL
+ * with err set (SS_ENOMEM).  label: a "label" member when not NULL and not
+ * empty; more (may be NULL): further members, written last. */
+char *api_render_analysis_text(const ss_analysis *a, const ss_calibration *cal,
+                               const char *label, api_render_more more,
+                               const void *more_ctx, size_t *len,
+                               ss_error *err);
 
 #endif /* SWAPSPEC_API_RENDER_H */

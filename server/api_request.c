@@ -4,7 +4,9 @@
  *
  * Owns the run and energy arrays it allocates for the request; the core
  * validates the values themselves (ranges, finiteness, limits) and names the
- * same field paths, so this file checks only shape and types.
+ * same field paths, so this file checks only shape and types.  A calibration
+ * by reference is only recorded here (name, pinned version, measured_at);
+ * api_calibration.c resolves it against the store.
  */
 #include "api_request.h"
 
@@ -14,6 +16,7 @@
 
 #include "calibration_file.h"
 #include "cli_json.h"
+#include "store.h"
 
 static int req_key_known(const char *key, const char *const *known) {
     for (size_t k = 0; known[k] != NULL; k++)
@@ -219,11 +222,66 @@ static ss_status req_options(const json_t *root, api_request *out,
     return SS_OK;
 }
 
+/* "calibration": inline numbers, or {"ref": NAME, "version"?: N}. */
+static ss_status req_calibration(const json_t *cal, api_request *out,
+                                 ss_error *err) {
+    if (cal == NULL)
+        return SS_OK;
+    json_t *ref = json_object_get(cal, "ref");
+    if (!json_is_object(cal) || ref == NULL) {
+        out->cal_inline = 1;
+        return cli_calibration_from_object(cal, "request",
+                                           &out->req.calibration, err);
+    }
+    const char *key;
+    json_t *value;
+    json_object_foreach((json_t *)cal, key, value) {
+        (void)value;
+        if (strcmp(key, "ref") != 0 && strcmp(key, "version") != 0) {
+            char field[96];
+            snprintf(field, sizeof field, "calibration.%.60s", key);
+            return ss_error_set(err, SS_EINVAL, field,
+                                "unknown field '%.60s': a calibration by "
+                                "reference has only ref and version (give "
+                                "the numbers inline instead)",
+                                key);
+        }
+    }
+    if (!json_is_string(ref) ||
+        !store_calibration_name_valid(json_string_value(ref)))
+        return store_calibration_name_error(json_string_value(ref),
+                                            "calibration.ref", err);
+    unsigned long long v = 0;
+    if (json_object_get(cal, "version") != NULL &&
+        (!req_count(cal, "version", "calibration.version", 1, 2147483647.0, &v,
+                    err) ||
+         v == 0))
+        return ss_error_set(err, SS_EINVAL, "calibration.version",
+                            "version must be a whole number from 1 to "
+                            "2147483647");
+    snprintf(out->cal_ref, sizeof out->cal_ref, "%s", json_string_value(ref));
+    out->cal_ref_version = (unsigned)v;
+    return SS_OK;
+}
+
+static ss_status req_measured_at(const json_t *v, api_request *out,
+                                 ss_error *err) {
+    if (v == NULL)
+        return SS_OK;
+    if (!json_is_string(v) ||
+        store_time_normalize(json_string_value(v), out->measured_at) != 0)
+        return ss_error_set(err, SS_EINVAL, "measured_at",
+                            "measured_at must be an RFC 3339 date-time such "
+                            "as 2026-12-02T03:50:12Z");
+    return SS_OK;
+}
+
 ss_status api_request_from_json(const json_t *root, api_request *out,
                                 ss_error *err) {
     static const char *const known[] = {
-        "levels",    "calibration", "runs",   "method", "confidence",
-        "bootstrap", "seed",        "window", "label",  NULL};
+        "levels", "calibration", "measured_at", "runs",
+        "method", "confidence",  "bootstrap",   "seed",
+        "window", "label",       NULL};
     memset(out, 0, sizeof *out);
     out->req = ss_analysis_request_default();
     ss_status st;
@@ -242,13 +300,11 @@ ss_status api_request_from_json(const json_t *root, api_request *out,
         goto fail;
     }
     out->req.levels = (unsigned)levels;
-    json_t *cal = json_object_get(root, "calibration");
-    if (cal != NULL) {
-        st = cli_calibration_from_object(cal, "request", &out->req.calibration,
-                                         err);
-        if (st != SS_OK)
-            goto fail;
-    }
+    st = req_calibration(json_object_get(root, "calibration"), out, err);
+    if (st == SS_OK)
+        st = req_measured_at(json_object_get(root, "measured_at"), out, err);
+    if (st != SS_OK)
+        goto fail;
     st = req_runs(json_object_get(root, "runs"), out, err);
     if (st == SS_OK)
         st = req_options(root, out, err);

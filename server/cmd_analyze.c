@@ -1,15 +1,17 @@
 /*
  * cmd_analyze.c — `swapspec analyze FILE.json` (or `-` for standard input):
  * measured energies to a spectrum with uncertainty, candidate diagrams and
- * flags.  Reads the request document (api_request.h), runs the core's
- * ss_analysis_run, and renders the result (api_render.h).  Owns the input
- * buffer for the duration of the command.
+ * flags.  Reads the request document (api_request.h), runs and renders it
+ * (analysis_exec.h, as the service does).  A calibration given by reference
+ * needs --data, the service's store, to be resolved.  Owns the input buffer
+ * for the duration of the command.
  */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
-#include "api_render.h"
+#include "analysis_exec.h"
 #include "api_request.h"
 #include "cli_json.h"
 #include "commands.h"
@@ -21,6 +23,9 @@ static const cli_option analyze_options[] = {
     {"method", CLI_PATH, 0, "METHOD", 0, 0, 0,
      "override the request's method: auto, moments, likelihood or "
      "diagrams"},
+    {"data", CLI_PATH, 0, "FILE.db", 0, 0, 0,
+     "the service's store, to resolve a calibration given by reference "
+     "({\"ref\": NAME}); nothing is written to it"},
 };
 
 /* Reads all of f into a new buffer (NUL-terminated); NULL with err set. */
@@ -65,6 +70,31 @@ static char *analyze_slurp(FILE *f, const char *name, size_t *len,
     return buf;
 }
 
+/* The request's calibration; a reference is resolved in the store at
+ * data_path (which must exist) at measured_at, else now. */
+static ss_status analyze_calibration(const char *data_path,
+                                     const api_request *req,
+                                     analysis_calibration *cal, ss_error *err) {
+    if (req->cal_ref[0] == '\0' || data_path == NULL)
+        return analysis_calibration_resolve(NULL, req, NULL, cal, err);
+    struct stat sb;
+    if (stat(data_path, &sb) != 0)
+        return ss_error_set(err, SS_ENOTFOUND, "data",
+                            "there is no store at '%s'", data_path);
+    store *db = NULL;
+    store_conn *c = NULL;
+    ss_status st = store_open(data_path, NULL, &db, err);
+    if (st == SS_OK)
+        st = store_conn_open(db, &c, err);
+    char now[32];
+    store_time_now(now);
+    if (st == SS_OK)
+        st = analysis_calibration_resolve(c, req, now, cal, err);
+    store_conn_close(c);
+    store_close(db);
+    return st;
+}
+
 static ss_status analyze_run(const cli_parsed *args, json_t **doc_out,
                              ss_error *err) {
     const char *path = args->positional;
@@ -92,15 +122,12 @@ static ss_status analyze_run(const cli_parsed *args, json_t **doc_out,
                             "--method must be auto, moments, likelihood or "
                             "diagrams");
     }
-    ss_analysis *a = NULL;
-    st = ss_analysis_run(&req.req, &a, err);
-    if (st == SS_OK) {
-        *doc_out = api_render_analysis(a, &req.req.calibration, err);
-        st = *doc_out ? SS_OK : err->code;
-        if (st == SS_OK && req.label[0])
-            json_object_set_new(*doc_out, "label", json_string(req.label));
-    }
-    ss_analysis_free(a);
+    analysis_calibration cal;
+    st = analyze_calibration(
+        args->values[1].present ? args->values[1].text : NULL, &req, &cal, err);
+    char method[16];
+    if (st == SS_OK)
+        st = analysis_execute(&req, &cal, NULL, doc_out, method, err);
     api_request_release(&req);
     return st;
 }

@@ -16,5 +16,6 @@ extern const cli_command cli_cmd_simulate;
 extern const cli_command cli_cmd_analyze;
 extern const cli_command cli_cmd_serve;
 extern const cli_command cli_cmd_routes;
+extern const cli_command cli_cmd_reprocess;
 
 #endif /* SWAPSPEC_COMMANDS_H */

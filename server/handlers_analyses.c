@@ -1,17 +1,18 @@
 /*
  * handlers_analyses.c — POST /v1/analyses (run the inversion, store request
  * and result, answer 201 with a Location; Idempotency-Key makes retries
- * safe), GET /v1/analyses/{id}, and GET /v1/analyses (filters and keyset
- * pagination, newest first).  The analysis itself is the core's
- * ss_analysis_run on the request decoded by api_request.c and rendered by
- * api_render.c, exactly as `swapspec analyze` does.  Owns nothing beyond
- * the request.
+ * safe), GET /v1/analyses/{id} (the latest revision, or ?revision=N),
+ * GET /v1/analyses/{id}/revisions (all of them, oldest first), and
+ * GET /v1/analyses (filters and keyset pagination, newest first).  The
+ * analysis itself runs through analysis_exec.c (calibration inline, default
+ * or by reference to a stored version), exactly as `swapspec analyze` and
+ * the reprocessing runner do.  Owns nothing beyond the request.
  */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
-#include "api_render.h"
+#include "analysis_exec.h"
 #include "api_request.h"
 #include "http.h"
 
@@ -20,12 +21,21 @@
 #endif
 
 /* The record document as text, assembled from the stored JSON texts
- * without parsing and printing them again. */
+ * without parsing and printing them again: id, created_at, label,
+ * software_version (of the revision shown), revision, revision_count, for a
+ * later revision revised_at and job_id, then request and result. */
 static ss_status analysis_record_text(http_ctx *ctx, const store_record *r,
+                                      const store_revision_info *info,
                                       ss_error *err) {
-    json_t *head =
-        json_pack("{s:s,s:s,s:s,s:s}", "id", r->id, "created_at", r->created_at,
-                  "label", r->label, "software_version", r->software_version);
+    json_t *head = json_pack(
+        "{s:s,s:s,s:s,s:s,s:I,s:I}", "id", r->id, "created_at", r->created_at,
+        "label", r->label, "software_version", info->software_version,
+        "revision", (json_int_t)info->revision, "revision_count",
+        (json_int_t)info->revision_count);
+    if (head != NULL && info->revision > 1) {
+        json_object_set_new(head, "revised_at", json_string(info->created_at));
+        json_object_set_new(head, "job_id", json_string(info->job_id));
+    }
     char *prefix = head ? json_dumps(head, JSON_COMPACT) : NULL;
     json_decref(head);
     if (prefix == NULL)
@@ -47,14 +57,24 @@ static ss_status analysis_record_text(http_ctx *ctx, const store_record *r,
     return SS_OK;
 }
 
-static ss_status analysis_replay(http_ctx *ctx, store_conn *c, const char *id,
-                                 ss_error *err) {
+/* Revision `revision` (0 = latest) of analysis id as the record text. */
+static ss_status analysis_send(http_ctx *ctx, store_conn *c, const char *id,
+                               unsigned revision, ss_error *err) {
     store_record rec;
     memset(&rec, 0, sizeof rec);
-    ss_status st = store_get(c, id, &rec, err);
+    store_revision_info info;
+    ss_status st = store_get_revision(c, id, revision, &rec, &info, err);
     if (st == SS_OK)
-        st = analysis_record_text(ctx, &rec, err);
+        st = analysis_record_text(ctx, &rec, &info, err);
     store_record_release(&rec);
+    return st;
+}
+
+/* The replay of an Idempotency-Key: the record as that request stored it
+ * (revision 1). */
+static ss_status analysis_replay(http_ctx *ctx, store_conn *c, const char *id,
+                                 ss_error *err) {
+    ss_status st = analysis_send(ctx, c, id, 1, err);
     if (st == SS_OK) {
         ctx->status = 200;
         ctx->replayed = 1;
@@ -84,58 +104,66 @@ static int analysis_idem_key(http_ctx *ctx, char *key, size_t cap) {
     return 1;
 }
 
-/* Runs and stores a new analysis (no idempotency decision here). */
+/* Runs and stores a new analysis (no idempotency decision here).  The
+ * creation time is taken first: a calibration by reference without
+ * measured_at resolves to the version valid at that time. */
 static ss_status analysis_compute(http_ctx *ctx, const char *key,
                                   const char *fingerprint, ss_error *err) {
     api_request req;
     ss_status st = api_request_from_json(ctx->json, &req, err);
     if (st != SS_OK)
         return st;
-    req.req.budget = http_app_settings(ctx->app)->budget;
-    ss_analysis *a = NULL;
-    json_t *result = NULL;
     store_record rec;
     memset(&rec, 0, sizeof rec);
-    st = ss_analysis_run(&req.req, &a, err);
-    if (st == SS_OK) {
-        result = api_render_analysis(a, &req.req.calibration, err);
-        if (result == NULL)
-            st = err->code;
-        else if (req.label[0])
-            json_object_set_new(result, "label", json_string(req.label));
-    }
+    store_time_now(rec.created_at);
+    store_conn *c = NULL;
+    if (req.cal_ref[0] && (c = http_store_conn(ctx->app, err)) == NULL)
+        st = err->code;
+    analysis_calibration cal;
+    if (st == SS_OK)
+        st = analysis_calibration_resolve(c, &req, rec.created_at, &cal, err);
+    size_t result_len = 0;
+    if (st == SS_OK)
+        st = analysis_execute_text(
+            &req, &cal, &http_app_settings(ctx->app)->budget, &rec.result_json,
+            &result_len, rec.method, err);
     if (st == SS_OK)
         st = store_id_generate(rec.id, err);
     if (st == SS_OK) {
-        store_time_now(rec.created_at);
         snprintf(rec.label, sizeof rec.label, "%s", req.label);
         rec.levels = req.req.levels;
-        snprintf(rec.method, sizeof rec.method, "%s",
-                 ss_method_name(a->method));
         snprintf(rec.software_version, sizeof rec.software_version, "%s",
                  SWAPSPEC_VERSION);
+        if (strcmp(cal.source, "ref") == 0) {
+            snprintf(rec.calibration_name, sizeof rec.calibration_name, "%s",
+                     cal.name);
+            rec.calibration_version = cal.version;
+        }
+        snprintf(rec.measured_at, sizeof rec.measured_at, "%s",
+                 req.measured_at);
         /* the request as received (already checked to be one JSON object
-         * without duplicate keys); the result rendered once, and the
-         * response assembled from the same texts that are stored */
+         * without duplicate keys); the result rendered once as text, and
+         * the response assembled from the same texts that are stored */
         rec.request_json = strndup(ctx->body, ctx->body_len);
-        rec.result_json =
-            json_dumps(result, JSON_COMPACT | JSON_REAL_PRECISION(17));
-        if (rec.request_json == NULL || rec.result_json == NULL)
+        if (rec.request_json == NULL)
             st = ss_error_set(err, SS_ENOMEM, "", NULL);
     }
     if (st == SS_OK) /* group commit: returns once the record is durable */
         st = committer_put(http_app_committer(ctx->app), &rec, key, fingerprint,
                            err);
     if (st == SS_OK) {
-        st = analysis_record_text(ctx, &rec, err);
+        store_revision_info first;
+        memset(&first, 0, sizeof first);
+        first.revision = first.revision_count = 1;
+        memcpy(first.software_version, rec.software_version,
+               sizeof first.software_version);
+        st = analysis_record_text(ctx, &rec, &first, err);
         ctx->status = 201;
         snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s",
                  rec.id);
     }
     free(rec.request_json);
     free(rec.result_json);
-    json_decref(result);
-    ss_analysis_free(a);
     api_request_release(&req);
     return st;
 }
@@ -189,16 +217,92 @@ ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
 }
 
 ss_status handle_analyses_get(http_ctx *ctx, ss_error *err) {
+    unsigned revision = 0;
+    ss_status st = http_query_count(ctx, "revision", &revision, err);
+    if (st != SS_OK)
+        return st;
     store_conn *c = http_store_conn(ctx->app, err);
     if (c == NULL)
         return err->code;
-    store_record rec;
-    memset(&rec, 0, sizeof rec);
-    ss_status st = store_get(c, ctx->id, &rec, err);
-    if (st == SS_OK)
-        st = analysis_record_text(ctx, &rec, err);
-    store_record_release(&rec);
-    return st;
+    return analysis_send(ctx, c, ctx->id, revision, err);
+}
+
+/* GET /v1/analyses/{id}/revisions: every revision, oldest first, each with
+ * its metadata and result text spliced in unparsed. */
+typedef struct {
+    char *text;
+    size_t len, cap;
+    int failed;
+} analysis_buf;
+
+static void analysis_buf_add(analysis_buf *b, const char *s, size_t n) {
+    if (b->failed)
+        return;
+    if (b->len + n + 1 > b->cap) {
+        size_t cap = (b->len + n + 1) * 2;
+        char *grown = realloc(b->text, cap);
+        if (grown == NULL) {
+            b->failed = 1;
+            return;
+        }
+        b->text = grown;
+        b->cap = cap;
+    }
+    memcpy(b->text + b->len, s, n);
+    b->len += n;
+    b->text[b->len] = '\0';
+}
+
+static ss_status analysis_revision_item(void *arg,
+                                        const store_revision_info *info,
+                                        const char *result_json,
+                                        ss_error *err) {
+    analysis_buf *b = arg;
+    json_t *head = json_pack(
+        "{s:I,s:s,s:s,s:s,s:o,s:o}", "revision", (json_int_t)info->revision,
+        "created_at", info->created_at, "software_version",
+        info->software_version, "method", info->method, "calibration",
+        info->calibration_name[0]
+            ? json_pack("{s:s,s:I}", "name", info->calibration_name, "version",
+                        (json_int_t)info->calibration_version)
+            : json_null(),
+        "job_id", info->job_id[0] ? json_string(info->job_id) : json_null());
+    char *prefix = head ? json_dumps(head, JSON_COMPACT) : NULL;
+    json_decref(head);
+    if (prefix == NULL)
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    if (info->revision > 1)
+        analysis_buf_add(b, ",", 1);
+    analysis_buf_add(b, prefix, strlen(prefix) - 1); /* without the '}' */
+    analysis_buf_add(b, ",\"result\":", 10);
+    analysis_buf_add(b, result_json, strlen(result_json));
+    analysis_buf_add(b, "}", 1);
+    free(prefix);
+    return b->failed ? ss_error_set(err, SS_ENOMEM, "", NULL) : SS_OK;
+}
+
+ss_status handle_analyses_revisions(http_ctx *ctx, ss_error *err) {
+    store_conn *c = http_store_conn(ctx->app, err);
+    if (c == NULL)
+        return err->code;
+    analysis_buf b = {NULL, 0, 0, 0};
+    char head[96];
+    int n = snprintf(head, sizeof head, "{\"id\":\"%s\",\"revisions\":[",
+                     store_id_valid(ctx->id) ? ctx->id : "");
+    analysis_buf_add(&b, head, (size_t)n);
+    ss_status st =
+        store_revisions_foreach(c, ctx->id, analysis_revision_item, &b, err);
+    analysis_buf_add(&b, "]}", 2);
+    if (st == SS_OK && b.failed)
+        st = ss_error_set(err, SS_ENOMEM, "", NULL);
+    if (st != SS_OK) {
+        free(b.text);
+        return st;
+    }
+    ctx->text = b.text;
+    ctx->text_len = b.len;
+    ctx->content_type = "application/json";
+    return SS_OK;
 }
 
 /* A list item: id, created_at, label, levels, method, the spectrum values

@@ -51,7 +51,7 @@ typedef ss_status (*http_handler)(http_ctx *ctx, ss_error *err);
 
 typedef struct {
     const char *method;
-    const char *path; /* template: "{id}" matches one segment */
+    const char *path; /* template: "{id}", "{name}" match one segment */
     auth_role role;   /* AUTH_NONE: open */
     int json_body;    /* 1: the body must be a JSON object */
     http_handler handler;
@@ -62,7 +62,7 @@ extern const size_t http_route_count;
 
 /* The route for (method, path): the match, or NULL with *allowed set to
  * the comma-separated methods of a path that exists (405) or "" (404).
- * The {id} segment, if any, is copied into id (at most cap−1 bytes). */
+ * The {...} segment, if any, is copied into id (at most cap−1 bytes). */
 const http_route *http_route_match(const char *method, const char *path,
                                    char *id, size_t cap, char *allowed,
                                    size_t allowed_cap);
@@ -74,7 +74,7 @@ struct http_ctx {
     const http_route *route;
     const char *method;
     const char *path;
-    char id[80];
+    char id[256];     /* the {id} or {name} segment of the path */
     const char *body; /* raw body (NUL-terminated), len body_len */
     size_t body_len;
     json_t *json; /* parsed body for json_body routes */
@@ -95,6 +95,8 @@ store_conn *http_store_conn(http_app *app, ss_error *err);
 store *http_app_store(http_app *app);
 /* The group-commit writer every stored analysis goes through. */
 committer *http_app_committer(http_app *app);
+/* The background thread that runs reprocessing jobs (reprocess_runner.h). */
+struct reprocess_runner *http_app_runner(http_app *app);
 metrics *http_app_metrics(http_app *app);
 const http_settings *http_app_settings(http_app *app);
 
@@ -107,6 +109,10 @@ void http_inflight_release(http_app *app, const char *key);
 const char *http_query(http_ctx *ctx, const char *name);
 /* A request header (NULL when absent). */
 const char *http_header(http_ctx *ctx, const char *name);
+/* A query parameter that must be a whole number from 1 to 2^31 − 1:
+ * *out = 0 when absent; SS_EINVAL naming the parameter otherwise. */
+ss_status http_query_count(http_ctx *ctx, const char *name, unsigned *out,
+                           ss_error *err);
 
 /* Problem responses: a new application/problem+json document for err
  * (RFC 9457: type, title, status, detail, errors[{pointer, detail}]). */
@@ -114,13 +120,26 @@ json_t *http_problem_doc(const ss_error *err, unsigned *status);
 /* "runs[2].energy_variance" -> "/runs/2/energy_variance" (RFC 6901). */
 void http_field_pointer(const char *field, char *out, size_t cap);
 
-/* Handlers (handlers_compute.c, handlers_analyses.c, handlers_ops.c). */
+/* Handlers (handlers_compute.c, handlers_analyses.c, handlers_ops.c,
+ * handlers_calibrations.c, handlers_jobs.c). */
 ss_status handle_predictions(http_ctx *ctx, ss_error *err);
 ss_status handle_candidates(http_ctx *ctx, ss_error *err);
 ss_status handle_simulations(http_ctx *ctx, ss_error *err);
 ss_status handle_analyses_create(http_ctx *ctx, ss_error *err);
 ss_status handle_analyses_get(http_ctx *ctx, ss_error *err);
 ss_status handle_analyses_list(http_ctx *ctx, ss_error *err);
+ss_status handle_analyses_revisions(http_ctx *ctx, ss_error *err);
+/* handlers_calibrations.c, handlers_jobs.c */
+ss_status handle_calibrations_put(http_ctx *ctx, ss_error *err);
+ss_status handle_calibrations_get(http_ctx *ctx, ss_error *err);
+ss_status handle_calibrations_list(http_ctx *ctx, ss_error *err);
+ss_status handle_reprocessing_create(http_ctx *ctx, ss_error *err);
+ss_status handle_jobs_get(http_ctx *ctx, ss_error *err);
+/* handlers_pages.c: HTML pages, SVG figures, the favicon */
+ss_status handle_page_index(http_ctx *ctx, ss_error *err);
+ss_status handle_page_analysis(http_ctx *ctx, ss_error *err);
+ss_status handle_figure(http_ctx *ctx, ss_error *err);
+ss_status handle_favicon(http_ctx *ctx, ss_error *err);
 ss_status handle_healthz(http_ctx *ctx, ss_error *err);
 ss_status handle_metrics(http_ctx *ctx, ss_error *err);
 

@@ -2,13 +2,18 @@
  * http_server.c — the daemon: libmicrohttpd with an internal thread pool on
  * epoll, the per-request pipeline (body cap → route → role → media type →
  * strict JSON → handler → response → log line and metrics), per-thread
- * store connections, in-flight Idempotency-Keys, and graceful shutdown on
- * SIGTERM/SIGINT (quiesce, drain with a deadline, stop, close the store).
+ * store connections, in-flight Idempotency-Keys, the reprocessing runner
+ * thread (reprocess_runner.h), and graceful shutdown on SIGTERM/SIGINT (the
+ * runner stops after its current item; quiesce, drain with a deadline,
+ * stop, close the store).
  *
- * Owns the http_app (store, tokens, metrics, settings) for the life of
- * http_serve, and each request's http_request until MHD's completion
+ * Owns the http_app (store, tokens, metrics, settings, runner) for the life
+ * of http_serve, and each request's http_request until MHD's completion
  * callback frees it.  Follows the 0.9.75 rules: a response is queued only
- * on the first call (413 from Content-Length) or the last one.
+ * on the first call or the last one.  A Content-Length over the cap is
+ * decided on the first call and answered 413 at once for clients waiting
+ * for 100 Continue and for bodies over HTTP_DRAIN_LIMIT, else on the last
+ * call after the body was read and dropped.
  */
 #include <arpa/inet.h>
 #include <errno.h>
@@ -23,6 +28,8 @@
 #include <unistd.h>
 
 #include "http.h"
+#include "json_text.h"
+#include "reprocess_runner.h"
 
 #define HTTP_INFLIGHT_MAX 1024
 
@@ -30,12 +37,18 @@ struct http_app {
     http_settings settings;
     store *db;
     committer *writer;
+    reprocess_runner *runner;
     auth_tokens *tokens;
     metrics *stats;
     pthread_key_t conn_key;
     pthread_mutex_t inflight_lock;
     char *inflight[HTTP_INFLIGHT_MAX];
 };
+
+/* A body declared larger than the limit is read and dropped up to this
+ * size before the 413 goes out (lingering close); larger ones, and clients
+ * waiting for 100 Continue, get the 413 at once. */
+#define HTTP_DRAIN_LIMIT (16ull * 1024 * 1024)
 
 /* Per-request state, freed in the completion callback. */
 typedef struct {
@@ -66,10 +79,12 @@ void http_settings_default(http_settings *s) {
     s->simulation_shots = 100000;
     s->budget.max_diagrams = 1000000;
     s->budget.max_table_cells = 8000000;
+    s->budget.max_work = 3000000000u; /* about 7 s of likelihood */
 }
 
 store *http_app_store(http_app *app) { return app->db; }
 committer *http_app_committer(http_app *app) { return app->writer; }
+reprocess_runner *http_app_runner(http_app *app) { return app->runner; }
 metrics *http_app_metrics(http_app *app) { return app->stats; }
 const http_settings *http_app_settings(http_app *app) { return &app->settings; }
 
@@ -123,6 +138,24 @@ const char *http_header(http_ctx *ctx, const char *name) {
     return MHD_lookup_connection_value(ctx->conn, MHD_HEADER_KIND, name);
 }
 
+/* A whole-number query parameter from 1 to 2^31 − 1; 0 when absent. */
+ss_status http_query_count(http_ctx *ctx, const char *name, unsigned *out,
+                           ss_error *err) {
+    const char *v = http_query(ctx, name);
+    *out = 0;
+    if (v == NULL)
+        return SS_OK;
+    char *end = NULL;
+    unsigned long x = strtoul(v, &end, 10);
+    if (v[0] < '0' || v[0] > '9' || *end != '\0' || x < 1 || x > 2147483647ul ||
+        strlen(v) > 10)
+        return ss_error_set(err, SS_EINVAL, name,
+                            "%s must be a whole number from 1 to 2147483647",
+                            name);
+    *out = (unsigned)x;
+    return SS_OK;
+}
+
 static double http_elapsed(const struct timespec *start) {
     struct timespec now;
     clock_gettime(CLOCK_MONOTONIC, &now);
@@ -139,8 +172,8 @@ static enum MHD_Result http_send(struct MHD_Connection *conn, http_request *req,
     char *body = text;
     size_t len = text_len;
     if (doc != NULL) {
-        body = json_dumps(doc, JSON_COMPACT | JSON_REAL_PRECISION(17));
-        len = body ? strlen(body) : 0;
+        body = json_text_dump(doc, &len); /* = json_dumps, faster */
+        len = body ? len : 0;
         json_decref(doc);
         content_type =
             problem ? "application/problem+json" : "application/json";
@@ -296,8 +329,20 @@ static enum MHD_Result http_access(void *cls, struct MHD_Connection *conn,
         *con_cls = req;
         const char *cl = MHD_lookup_connection_value(
             conn, MHD_HEADER_KIND, MHD_HTTP_HEADER_CONTENT_LENGTH);
-        if (cl != NULL && strtoull(cl, NULL, 10) > app->settings.body_limit) {
-            char ignored[80], allowed[64];
+        unsigned long long declared = cl ? strtoull(cl, NULL, 10) : 0;
+        const char *expect = MHD_lookup_connection_value(
+            conn, MHD_HEADER_KIND, MHD_HTTP_HEADER_EXPECT);
+        if (declared > app->settings.body_limit &&
+            declared <= HTTP_DRAIN_LIMIT &&
+            (expect == NULL || strcasecmp(expect, "100-continue") != 0)) {
+            /* decided now, answered once the body has been read and
+             * dropped: a client that sent it whole would otherwise see the
+             * connection reset before it reads the 413 */
+            req->too_big = 1;
+            return MHD_YES;
+        }
+        if (cl != NULL && declared > app->settings.body_limit) {
+            char ignored[256], allowed[64];
             const http_route *r = http_route_match(
                 method, url, ignored, sizeof ignored, allowed, sizeof allowed);
             req->route = r ? r->path : "unmatched";
@@ -443,7 +488,9 @@ int http_serve(const http_settings *settings, ss_error *err) {
         goto done;
     store_options so = {2000};
     if (store_open(settings->data_path, &so, &app->db, err) != SS_OK ||
-        committer_start(app->db, 256, &app->writer, err) != SS_OK)
+        committer_start(app->db, 256, &app->writer, err) != SS_OK ||
+        reprocess_runner_start(app->db, &settings->budget, &app->runner, err) !=
+            SS_OK)
         goto done;
 
     struct sockaddr_in addr;
@@ -529,6 +576,9 @@ int http_serve(const http_settings *settings, ss_error *err) {
                              "tls", tls, "version", SWAPSPEC_VERSION));
     int sig = 0;
     sigwait(&sigs, &sig);
+    /* the reprocessing job stops after its current item (it resumes at the
+     * next start) while the requests in flight drain */
+    reprocess_runner_request_stop(app->runner);
     /* quiesce: stop accepting, let in-flight requests finish */
     MHD_socket listen_fd = MHD_quiesce_daemon(d);
     struct timespec start;
@@ -557,6 +607,7 @@ done:
         MHD_stop_daemon(d);
     free(cert);
     free(key);
+    reprocess_runner_stop(app->runner);
     committer_stop(app->writer); /* after the workers: nothing is queued */
     store_close(app->db);
     auth_tokens_free(app->tokens);

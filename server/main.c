@@ -21,8 +21,8 @@
 #endif
 
 static const cli_command *const main_commands[] = {
-    &cli_cmd_predict, &cli_cmd_diagrams, &cli_cmd_simulate,
-    &cli_cmd_analyze, &cli_cmd_serve,    &cli_cmd_routes,
+    &cli_cmd_predict, &cli_cmd_diagrams, &cli_cmd_simulate,  &cli_cmd_analyze,
+    &cli_cmd_serve,   &cli_cmd_routes,   &cli_cmd_reprocess,
 };
 #define MAIN_COMMAND_COUNT (sizeof main_commands / sizeof main_commands[0])
 

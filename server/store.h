@@ -62,6 +62,14 @@ typedef struct {
     char *request_json; /* owned by the record when filled by get/list
                            (NULL in list items) */
     char *result_json;  /* idem */
+    /* The calibration by reference (schema 2): the name and the version
+     * the analysis resolved, "" and 0 for an inline or default calibration
+     * (store_put writes NULL then); when the shots were taken, in the
+     * record form, "" when the request did not say.  store_get and
+     * store_list do not fill these (store_get_revision does). */
+    char calibration_name[72];
+    unsigned calibration_version;
+    char measured_at[32];
 } store_record;
 
 typedef struct {
@@ -185,5 +193,232 @@ int store_time_canonical(const char *s);
  * when t < out.  Returns 0, or -1 for anything else (also a date outside
  * the years 0000..9999 after conversion to UTC). */
 int store_time_normalize(const char *s, char out[32]);
+
+/* ------------------------------------------------------------------------ */
+/* Calibrations (store_sqlite_calib.c): named, versioned, never changed.    */
+
+/* A calibration name: 1..STORE_CALIBRATION_NAME_MAX of [a-z0-9-]. */
+#define STORE_CALIBRATION_NAME_MAX 64
+/* Longest note of a calibration version (bytes). */
+#define STORE_CALIBRATION_NOTE_MAX 500
+
+/* One version of a named calibration. */
+typedef struct {
+    char name[STORE_CALIBRATION_NAME_MAX + 8];
+    unsigned version;    /* 1, 2, ... in the order they were stored */
+    char created_at[32]; /* record form */
+    char valid_from[32]; /* record form: valid for shots at or after it */
+    char note[STORE_CALIBRATION_NOTE_MAX + 1];
+    ss_calibration cal;
+} store_calibration;
+
+/* One name in the list of calibrations: its latest version. */
+typedef struct {
+    char name[STORE_CALIBRATION_NAME_MAX + 8];
+    unsigned latest_version;
+    unsigned count; /* versions stored (= latest_version) */
+    char valid_from[32];
+    char created_at[32];
+} store_calibration_entry;
+
+/* 1 when s is a calibration name of the form above. */
+int store_calibration_name_valid(const char *s);
+/* The one error for a bad calibration name (s may be NULL: not a string):
+ * SS_EINVAL naming `field`, saying the rule and, for upper-case letters,
+ * the lower-case name to use. */
+ss_status store_calibration_name_error(const char *s, const char *field,
+                                       ss_error *err);
+
+/* Stores a new version of io->name (io->created_at, valid_from, note and
+ * cal as given; the version number is the next one of that name, written
+ * to io->version).  SS_EINVAL naming "name", "created_at", "valid_from",
+ * "note" or "calibration.<key>" for a malformed argument. */
+ss_status store_calibration_put(store_conn *c, store_calibration *io,
+                                ss_error *err);
+/* Version `version` of name (0 = the latest).  SS_ENOTFOUND naming "name"
+ * (no such calibration) or "version" (the name exists, the version not). */
+ss_status store_calibration_get(store_conn *c, const char *name,
+                                unsigned version, store_calibration *out,
+                                ss_error *err);
+/* The version of name valid at `at` (record form): the greatest valid_from
+ * <= at, ties to the higher version.  SS_ENOTFOUND naming "name" (no such
+ * calibration) or "at" (no version valid yet at that time; the message
+ * gives the earliest valid_from). */
+ss_status store_calibration_valid_at(store_conn *c, const char *name,
+                                     const char *at, store_calibration *out,
+                                     ss_error *err);
+/* Every name, sorted, with its latest version.  *items is malloc'd (free
+ * it; NULL when *count is 0). */
+ss_status store_calibration_list(store_conn *c, store_calibration_entry **items,
+                                 size_t *count, ss_error *err);
+
+/* ------------------------------------------------------------------------ */
+/* Revisions (store_sqlite_revisions.c).  Revision 1 is the analysis as
+ * first stored; each reprocessing run that changes the calibration adds
+ * revision k+1.  Nothing is overwritten.                                    */
+
+typedef struct {
+    unsigned revision;         /* 1, 2, ... */
+    unsigned revision_count;   /* revisions the analysis has */
+    char created_at[32];       /* when this revision was computed */
+    char calibration_name[72]; /* "" = inline or default calibration */
+    unsigned calibration_version;
+    char software_version[32];
+    char job_id[32]; /* the job that wrote it; "" for revision 1 */
+    char method[16];
+} store_revision_info;
+
+/* The analysis `id` with revision `revision` (0 = the latest): out holds
+ * the record (request_json, and result_json of that revision; the other
+ * fields are the analysis's, calibration_* of revision 1), info the
+ * revision.  One read transaction, so both agree.  SS_ENOTFOUND naming "id"
+ * or "revision". Release out with store_record_release. */
+ss_status store_get_revision(store_conn *c, const char *id, unsigned revision,
+                             store_record *out, store_revision_info *info,
+                             ss_error *err);
+
+/* Calls fn for each revision of `id`, oldest first, inside one read
+ * transaction; result_json is valid during the call only.  A non-SS_OK
+ * return of fn stops the walk and is returned.  SS_ENOTFOUND naming "id". */
+typedef ss_status (*store_revision_fn)(void *ctx,
+                                       const store_revision_info *info,
+                                       const char *result_json, ss_error *err);
+ss_status store_revisions_foreach(store_conn *c, const char *id,
+                                  store_revision_fn fn, void *ctx,
+                                  ss_error *err);
+
+/* ------------------------------------------------------------------------ */
+/* Reprocessing jobs (store_sqlite_jobs.c).  A job re-runs the analyses
+ * whose calibration was given by reference to one name.  The analyses are
+ * snapshotted into job items when the job is created; each item's new
+ * revision and its done mark commit in one transaction, so an interrupted
+ * job resumes without duplicates or losses.  One runner owns a job at a
+ * time (jobs.owner, a compare-and-set claim; see reprocess_runner.c).      */
+
+typedef struct {
+    char calibration[STORE_CALIBRATION_NAME_MAX + 8];
+    unsigned version; /* 0: each analysis gets the version valid at its
+                         measured time (else its creation time) */
+    char since[32];   /* record form; "" = no bound (created_at >= since) */
+    char until[32];   /* record form; "" = no bound (created_at < until) */
+    int has_label;
+    char label[128];
+} store_job_params;
+
+typedef struct {
+    char id[32]; /* "job_" + 20 lowercase hex characters */
+    char created_at[32];
+    char origin[8]; /* "http" or "cli" */
+    char state[12]; /* queued, running, done, failed */
+    store_job_params params;
+    uint64_t total, revised, unchanged, failed; /* done = the three summed */
+    char started_at[32];                        /* "" until first claimed */
+    char finished_at[32];                       /* "" until done or failed */
+    char owner[48];                             /* "" when no runner holds it */
+    char heartbeat_at[32];
+} store_job;
+
+/* One job item still to do. */
+typedef struct {
+    uint64_t seq;
+    char analysis_id[32];
+    unsigned version; /* 0: no version was valid at the analysis's time */
+} store_job_item;
+
+/* The outcome of one item. */
+typedef enum {
+    STORE_ITEM_REVISED,   /* a new revision was written */
+    STORE_ITEM_UNCHANGED, /* the latest revision already used that version */
+    STORE_ITEM_FAILED     /* the analysis could not be re-run (detail) */
+} store_item_outcome;
+
+/* What the runner needs to re-run one analysis. */
+typedef struct {
+    char *request_json; /* owned; release with store_job_source_release */
+    char created_at[32];
+    char measured_at[32]; /* "" = not given */
+    unsigned revision_count;
+    char calibration_name[72]; /* of the latest revision */
+    unsigned calibration_version;
+} store_job_source;
+
+/* A job id "job_" + 20 lowercase hex characters; 1 when s is one. */
+ss_status store_job_id_generate(char out[32], ss_error *err);
+int store_job_id_valid(const char *s);
+
+/* Creates a job and snapshots its items in one transaction: queued, or,
+ * with an owner (NULL or "" = none), running and held by it from the
+ * start, so that no other runner takes it first.  A job without items is
+ * done at once.  SS_EINVAL naming "calibration" (no such name) or
+ * "version" (no such version).  out receives the job. */
+ss_status store_job_create(store_conn *c, const store_job_params *p,
+                           const char *origin, const char *owner,
+                           store_job *out, ss_error *err);
+/* SS_ENOTFOUND naming "id". */
+ss_status store_job_get(store_conn *c, const char *id, store_job *out,
+                        ss_error *err);
+/* The newest unfinished (queued or running) job with exactly these
+ * parameters: *found = 1 and id filled, or *found = 0. */
+ss_status store_job_find_unfinished(store_conn *c, const store_job_params *p,
+                                    char id[32], int *found, ss_error *err);
+/* Up to cap unfinished jobs, oldest first. */
+ss_status store_job_unfinished(store_conn *c, store_job *out, size_t cap,
+                               size_t *count, ss_error *err);
+/* Compare-and-set ownership: takes the job for `me` when its owner is
+ * still `expected` ("" = none) and it is unfinished; a queued job becomes
+ * running (started_at set once).  *claimed = 1 on success. */
+ss_status store_job_claim(store_conn *c, const char *id, const char *expected,
+                          const char *me, int *claimed, ss_error *err);
+/* Gives the job up (owner cleared) when `me` holds it. */
+ss_status store_job_release(store_conn *c, const char *id, const char *me,
+                            ss_error *err);
+/* Marks a job whose items are all done as done (no failed item) or failed;
+ * SS_ECONFLICT naming "job" when `me` does not hold it or items remain. */
+ss_status store_job_finish(store_conn *c, const char *id, const char *me,
+                           ss_error *err);
+/* Up to cap pending items with seq > after, in seq order. */
+ss_status store_job_pending(store_conn *c, const char *id, uint64_t after,
+                            store_job_item *items, size_t cap, size_t *count,
+                            ss_error *err);
+/* Failed items, first cap in seq order: fn(ctx, analysis_id, detail). */
+typedef void (*store_job_error_fn)(void *ctx, const char *analysis_id,
+                                   const char *detail);
+ss_status store_job_errors(store_conn *c, const char *id, size_t cap,
+                           store_job_error_fn fn, void *ctx, ss_error *err);
+/* The request and latest revision of an analysis. */
+ss_status store_job_source_get(store_conn *c, const char *analysis_id,
+                               store_job_source *out, ss_error *err);
+void store_job_source_release(store_job_source *s); /* accepts NULL */
+
+/* A new revision to write for an item (NULL for a failed item; with
+ * result_json NULL the item is marked unchanged without a check: the
+ * runner saw that the latest revision already uses that version). */
+typedef struct {
+    char created_at[32];
+    const char *calibration_name;
+    unsigned calibration_version;
+    const char *software_version;
+    const char *method;
+    const char *result_json;
+} store_revision_new;
+
+/* Finishes one item in one transaction: renews the heartbeat of `me`
+ * (SS_ECONFLICT naming "job" when another runner took the job over);
+ * with rev, writes revision k+1 unless the latest revision already used
+ * rev's calibration (then the item is unchanged); without rev, marks the
+ * item failed with `detail`; counts the outcome on the job.  *outcome
+ * receives what was done.  Nothing is written on failure. */
+ss_status store_job_item_finish(store_conn *c, const char *job_id,
+                                const char *me, uint64_t seq,
+                                const char *analysis_id,
+                                const store_revision_new *rev,
+                                const char *detail, store_item_outcome *outcome,
+                                ss_error *err);
+
+/* Bulk connections (reprocessing): synchronous=NORMAL.  In WAL mode a
+ * commit is still atomic and survives a crash of the process; a power
+ * loss may roll back the last commits, and since each item's revision and
+ * its done mark share one transaction such an item is simply done again. */
+ss_status store_conn_set_bulk(store_conn *c, ss_error *err);
 
 #endif /* SWAPSPEC_STORE_H */

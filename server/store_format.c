@@ -1,7 +1,7 @@
 /*
  * store_format.c — the formats of the store that do not depend on a backend:
- * analysis ids, timestamps, the opaque page cursor and the argument checks
- * of put and list.
+ * analysis and job ids, calibration names, timestamps, the opaque page cursor
+ * and the argument checks of put and list.
  *
  * Timestamps are kept in one fixed text form, "YYYY-MM-DDTHH:MM:SS.mmmZ"
  * (UTC, milliseconds), so that text order is time order in every backend.
@@ -206,7 +206,8 @@ int store_id_valid(const char *s) {
            sf_lower_hex(s + 3, 20);
 }
 
-ss_status store_id_generate(char out[32], ss_error *err) {
+/* prefix + 20 lowercase hex characters from the kernel's random source. */
+static ss_status sf_random_id(const char *prefix, char out[32], ss_error *err) {
     unsigned char raw[10];
     size_t got = 0;
     while (got < sizeof raw) {
@@ -217,13 +218,62 @@ ss_status store_id_generate(char out[32], ss_error *err) {
         got += (size_t)n;
     }
     static const char hex[] = "0123456789abcdef";
-    memcpy(out, "an_", 3);
+    size_t p = strlen(prefix);
+    memcpy(out, prefix, p);
     for (size_t i = 0; i < sizeof raw; ++i) {
-        out[3 + 2 * i] = hex[raw[i] >> 4];
-        out[4 + 2 * i] = hex[raw[i] & 15];
+        out[p + 2 * i] = hex[raw[i] >> 4];
+        out[p + 1 + 2 * i] = hex[raw[i] & 15];
     }
-    out[23] = '\0';
+    out[p + 20] = '\0';
     return SS_OK;
+}
+
+ss_status store_id_generate(char out[32], ss_error *err) {
+    return sf_random_id("an_", out, err);
+}
+
+ss_status store_job_id_generate(char out[32], ss_error *err) {
+    return sf_random_id("job_", out, err);
+}
+
+int store_job_id_valid(const char *s) {
+    return s != NULL && strncmp(s, "job_", 4) == 0 && strlen(s) == 24 &&
+           sf_lower_hex(s + 4, 20);
+}
+
+int store_calibration_name_valid(const char *s) {
+    size_t n = s != NULL ? strlen(s) : 0;
+    if (n < 1 || n > STORE_CALIBRATION_NAME_MAX)
+        return 0;
+    for (size_t i = 0; i < n; ++i)
+        if (!((s[i] >= 'a' && s[i] <= 'z') || (s[i] >= '0' && s[i] <= '9') ||
+              s[i] == '-'))
+            return 0;
+    return 1;
+}
+
+ss_status store_calibration_name_error(const char *s, const char *field,
+                                       ss_error *err) {
+    char lower[STORE_CALIBRATION_NAME_MAX + 1];
+    size_t n = s != NULL ? strlen(s) : 0;
+    int upper = 0;
+    for (size_t i = 0; i < n && i < STORE_CALIBRATION_NAME_MAX; ++i) {
+        upper |= s[i] >= 'A' && s[i] <= 'Z';
+        lower[i] = (char)(s[i] >= 'A' && s[i] <= 'Z' ? s[i] - 'A' + 'a' : s[i]);
+        lower[i + 1] = '\0';
+    }
+    if (s == NULL)
+        return ss_error_set(err, SS_EINVAL, field,
+                            "%s must be a string: a calibration name", field);
+    if (upper && n <= STORE_CALIBRATION_NAME_MAX &&
+        store_calibration_name_valid(lower))
+        return ss_error_set(err, SS_EINVAL, field,
+                            "calibration names are lower case: use '%s'",
+                            lower);
+    return ss_error_set(err, SS_EINVAL, field,
+                        "a calibration name is 1 to %d characters of a-z, 0-9 "
+                        "and '-'",
+                        STORE_CALIBRATION_NAME_MAX);
 }
 
 /* ------------------------------------------------------------------------ */

@@ -15,6 +15,9 @@
  * list query in store_sqlite_list.c, the schema and migrations in
  * store_sqlite_schema.c.
  *
+ * Also the small helpers the schema-2 files share (store_sqlite.h:
+ * statements prepared on first use, transactions, binding and copying).
+ *
  * Owns: the store (its path copy), each connection's sqlite3 handle and
  * prepared statements.
  */
@@ -34,8 +37,9 @@ static const char *const sq_fixed_sql[SQ_FIXED_COUNT] = {
     [SQ_ROLLBACK_TO] = "ROLLBACK TO put_item",
     [SQ_PUT_ANALYSIS] =
         "INSERT INTO analyses (id, created_at, label, levels, method,"
-        " software_version, request_json, result_json)"
-        " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+        " software_version, request_json, result_json, calibration_name,"
+        " calibration_version, measured_at)"
+        " VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
     [SQ_PUT_KEY] = "INSERT INTO idempotency_keys (key, fingerprint,"
                    " analysis_id, created_at) VALUES (?1, ?2, ?3, ?4)",
     [SQ_GET] = "SELECT id, created_at, label, levels, method,"
@@ -177,6 +181,8 @@ void store_conn_close(store_conn *c) {
         sqlite3_finalize(c->fixed[i]);
     for (int i = 0; i < SQ_LIST_VARIANTS; ++i)
         sqlite3_finalize(c->list[i]);
+    for (int i = 0; i < SQL_LAZY_COUNT; ++i)
+        sqlite3_finalize(c->lazy[i]);
     sqlite3_close(c->db);
     free(c);
 }
@@ -220,6 +226,12 @@ static ss_status sq_insert(store_conn *c, const store_record *rec,
     sq_bind(q, 6, rec->software_version);
     sq_bind(q, 7, rec->request_json);
     sq_bind(q, 8, rec->result_json);
+    if (rec->calibration_name[0] != '\0') {
+        sq_bind(q, 9, rec->calibration_name);
+        sqlite3_bind_int64(q, 10, rec->calibration_version);
+    }
+    if (rec->measured_at[0] != '\0')
+        sq_bind(q, 11, rec->measured_at);
     ss_error why; /* SQLite's message, taken before the statement resets */
     ss_error_clear(&why);
     ss_status st = SS_OK;
@@ -321,6 +333,79 @@ ss_status store_put_batch(store_conn *c, store_put_item *items, size_t n,
         return sq_batch_fail(items, n, st, &local);
     }
     return SS_OK;
+}
+
+/* ------------------------------------------------------------------------ */
+/* Helpers of the schema-2 files (store_sqlite.h).                           */
+
+sqlite3_stmt *store__stmt(store_conn *c, int which, const char *sql,
+                          ss_error *err) {
+    if (c->lazy[which] == NULL) {
+        int rc = sqlite3_prepare_v3(c->db, sql, -1, SQLITE_PREPARE_PERSISTENT,
+                                    &c->lazy[which], NULL);
+        if (rc != SQLITE_OK) {
+            store_sqlite_fail(c->db, c->owner->path, rc, "preparing", err);
+            return NULL;
+        }
+    }
+    return c->lazy[which];
+}
+
+void store__done(sqlite3_stmt *q) {
+    if (q != NULL) {
+        sqlite3_reset(q);
+        sqlite3_clear_bindings(q);
+    }
+}
+
+ss_status store__begin(store_conn *c, ss_error *err) {
+    ss_status st = SS_OK;
+    sq_run(c, SQ_BEGIN, "waiting for the write lock", &st, err);
+    return st;
+}
+
+ss_status store__commit(store_conn *c, ss_error *err) {
+    ss_status st = SS_OK;
+    sq_run(c, SQ_COMMIT, "committing", &st, err);
+    return st;
+}
+
+void store__rollback(store_conn *c) { sq_rollback(c); }
+
+ss_status store__begin_read(store_conn *c, ss_error *err) {
+    int rc = sqlite3_exec(c->db, "BEGIN", NULL, NULL, NULL);
+    return rc == SQLITE_OK ? SS_OK
+                           : store_sqlite_fail(c->db, c->owner->path, rc,
+                                               "starting a read", err);
+}
+
+void store__bind_text(sqlite3_stmt *q, int i, const char *text) {
+    sqlite3_bind_text(q, i, text, -1, SQLITE_STATIC);
+}
+
+void store__bind_text_or_null(sqlite3_stmt *q, int i, const char *text) {
+    if (text != NULL && text[0] != '\0')
+        sqlite3_bind_text(q, i, text, -1, SQLITE_STATIC);
+    else
+        sqlite3_bind_null(q, i);
+}
+
+int store__copy(sqlite3_stmt *q, int i, char *dst, size_t cap) {
+    const unsigned char *t = sqlite3_column_text(q, i);
+    size_t n = t != NULL ? (size_t)sqlite3_column_bytes(q, i) : 0;
+    if (n >= cap)
+        return 0;
+    memcpy(dst, t != NULL ? (const char *)t : "", n);
+    dst[n] = '\0';
+    return 1;
+}
+
+ss_status store_conn_set_bulk(store_conn *c, ss_error *err) {
+    int rc =
+        sqlite3_exec(c->db, "PRAGMA synchronous = NORMAL", NULL, NULL, NULL);
+    return rc == SQLITE_OK ? SS_OK
+                           : store_sqlite_fail(c->db, c->owner->path, rc,
+                                               "setting synchronous", err);
 }
 
 ss_status store_purge_idempotency(store_conn *c, time_t now, uint64_t *purged,

@@ -1,7 +1,8 @@
 /*
  * store_sqlite.h — internals of the SQLite backend of the store, shared by
- * store_sqlite.c, store_sqlite_read.c, store_sqlite_list.c and
- * store_sqlite_schema.c.
+ * store_sqlite.c, store_sqlite_read.c, store_sqlite_list.c,
+ * store_sqlite_schema.c and the schema-2 files store_sqlite_calib.c,
+ * store_sqlite_revisions.c and store_sqlite_jobs.c.
  *
  * Handlers include store.h only.  Tests and diagnostics may use
  * store_sqlite_handle() to reach the connection's own sqlite3 handle (for
@@ -45,11 +46,24 @@ struct store {
     unsigned long long dev, ino; /* the file opened (see store_check) */
 };
 
+/* Statements of the schema-2 files (calibrations, revisions, jobs),
+ * prepared on first use by store__stmt; each file owns its slots. */
+enum {
+    SQL_CAL_FIRST = 0,
+    SQL_CAL_COUNT = 6,
+    SQL_REV_FIRST = SQL_CAL_FIRST + SQL_CAL_COUNT,
+    SQL_REV_COUNT = 6,
+    SQL_JOB_FIRST = SQL_REV_FIRST + SQL_REV_COUNT,
+    SQL_JOB_COUNT = 20,
+    SQL_LAZY_COUNT = SQL_JOB_FIRST + SQL_JOB_COUNT
+};
+
 struct store_conn {
     const store *owner;
     sqlite3 *db;
     sqlite3_stmt *fixed[SQ_FIXED_COUNT];
     sqlite3_stmt *list[SQ_LIST_VARIANTS]; /* prepared on first use */
+    sqlite3_stmt *lazy[SQL_LAZY_COUNT];   /* prepared on first use */
 };
 
 /* Maps an SQLite result code to a status: BUSY/LOCKED -> SS_EBUSY, FULL ->
@@ -84,6 +98,27 @@ ss_status store__read_row(store_conn *c, sqlite3_stmt *q, int with_request,
  * written into buf; -1 when it does not fit.  Parameters: :label, :since,
  * :until, :after_t, :after_id, :limit. */
 int store_sqlite_list_sql(unsigned variant, char *buf, size_t cap);
+
+/* Statement slot `which` of c, prepared from sql on first use (the same
+ * slot must always get the same text).  NULL with err set on failure. */
+sqlite3_stmt *store__stmt(store_conn *c, int which, const char *sql,
+                          ss_error *err);
+/* Resets a statement and clears its bindings (after every use, so that no
+ * read transaction stays open). */
+void store__done(sqlite3_stmt *q);
+/* BEGIN IMMEDIATE / COMMIT / ROLLBACK (a no-op when SQLite already rolled
+ * back) on c; begin and commit record a failure in err. */
+ss_status store__begin(store_conn *c, ss_error *err);
+ss_status store__commit(store_conn *c, ss_error *err);
+void store__rollback(store_conn *c);
+/* A deferred read transaction, so that several reads see one snapshot. */
+ss_status store__begin_read(store_conn *c, ss_error *err);
+/* Binds text (SQLITE_STATIC), or NULL for an empty string. */
+void store__bind_text(sqlite3_stmt *q, int i, const char *text);
+void store__bind_text_or_null(sqlite3_stmt *q, int i, const char *text);
+/* Copies column i into a fixed array ("" for NULL); 0 when it does not
+ * fit. */
+int store__copy(sqlite3_stmt *q, int i, char *dst, size_t cap);
 
 /* The connection's sqlite3 handle (tests and diagnostics only). */
 sqlite3 *store_sqlite_handle(store_conn *c);

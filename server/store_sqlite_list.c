@@ -10,6 +10,7 @@
  * (test_store checks the query plans).  Each combination of filters has its
  * own statement, built here and prepared once per connection on first use,
  * so that no "?1 IS NULL OR ..." clause hides the indexes from the planner.
+ * Each item carries the result of the analysis's latest revision.
  * Owns: the list statements of a connection (finalised with it) and the
  * page items it allocates.
  */
@@ -28,9 +29,14 @@ int store_sqlite_list_sql(unsigned variant, char *buf, size_t cap) {
         "created_at < :until",
         "(created_at, id) < (:after_t, :after_id)",
     };
+    /* the result of the latest revision (schema 2): a later revision when
+     * there is one (max via the revisions' unique index), else the row's */
     int n = snprintf(buf, cap,
                      "SELECT id, created_at, label, levels, method,"
-                     " software_version, result_json FROM analyses");
+                     " software_version, coalesce((SELECT r.result_json"
+                     " FROM revisions r WHERE r.analysis_id = analyses.id"
+                     " ORDER BY r.revision DESC LIMIT 1), result_json)"
+                     " FROM analyses");
     const char *joint = " WHERE ";
     for (unsigned bit = 0; bit < 4; ++bit) {
         if (n < 0 || (size_t)n >= cap)

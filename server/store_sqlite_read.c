@@ -18,17 +18,6 @@
 /* ------------------------------------------------------------------------ */
 /* Reads.                                                                    */
 
-/* Copies column i into a fixed array; 0 when it does not fit. */
-static int sq_copy(sqlite3_stmt *q, int i, char *dst, size_t cap) {
-    const unsigned char *t = sqlite3_column_text(q, i);
-    size_t n = t != NULL ? (size_t)sqlite3_column_bytes(q, i) : 0;
-    if (n >= cap)
-        return 0;
-    memcpy(dst, t != NULL ? (const char *)t : "", n);
-    dst[n] = '\0';
-    return 1;
-}
-
 static char *sq_dup(sqlite3_stmt *q, int i) {
     const unsigned char *t = sqlite3_column_text(q, i);
     return strdup(t != NULL ? (const char *)t : "");
@@ -38,11 +27,11 @@ ss_status store__read_row(store_conn *c, sqlite3_stmt *q, int with_request,
                           store_record *out, ss_error *err) {
     store_record r;
     memset(&r, 0, sizeof r);
-    int ok = sq_copy(q, 0, r.id, sizeof r.id) &&
-             sq_copy(q, 1, r.created_at, sizeof r.created_at) &&
-             sq_copy(q, 2, r.label, sizeof r.label) &&
-             sq_copy(q, 4, r.method, sizeof r.method) &&
-             sq_copy(q, 5, r.software_version, sizeof r.software_version);
+    int ok = store__copy(q, 0, r.id, sizeof r.id) &&
+             store__copy(q, 1, r.created_at, sizeof r.created_at) &&
+             store__copy(q, 2, r.label, sizeof r.label) &&
+             store__copy(q, 4, r.method, sizeof r.method) &&
+             store__copy(q, 5, r.software_version, sizeof r.software_version);
     sqlite3_int64 levels = sqlite3_column_int64(q, 3);
     if (!ok || levels < 0 || levels > 0xffff)
         return ss_error_set(err, SS_ESTORE, "",
@@ -96,7 +85,8 @@ ss_status store_idempotency_find(store_conn *c, const char *key,
     ss_status st = SS_OK;
     char fp[65], aid[32];
     if (rc == SQLITE_ROW) {
-        if (sq_copy(q, 0, fp, sizeof fp) && sq_copy(q, 1, aid, sizeof aid)) {
+        if (store__copy(q, 0, fp, sizeof fp) &&
+            store__copy(q, 1, aid, sizeof aid)) {
             memcpy(fingerprint, fp, sizeof fp);
             memcpy(id, aid, sizeof aid);
             *found = 1;

@@ -7,17 +7,22 @@
 #  3. builds build-asan/ with AddressSanitizer and UndefinedBehaviorSanitizer
 #     (-DSWAPSPEC_SANITIZE=ON -DSWAPSPEC_WERROR=ON) and runs ctest there;
 #  4. checks the formatting of core/, server/ and tests/ with clang-format;
-#  5. prints "N passed, N failed", counting test programs over both trees
+#  5. fuzzes: tests/fuzz/run.sh builds the libFuzzer targets with clang in
+#     build-fuzz/ and runs each for FUZZ_SECONDS (default 75), two at a
+#     time, printing executions, exec/s and coverage per target;
+#  6. prints "N passed, N failed", counting test programs over both trees
 #     (a tree that does not build counts all its programs as failed).
-# Exit status 0 only when every test program passed and the format is clean.
-# JOBS (default 2) sets the build parallelism.
+# Exit status 0 only when every test program passed, the format is clean
+# and no fuzz target failed.  JOBS (default 2) sets the build parallelism;
+# FUZZ_SECONDS=0 skips the fuzz stage.
 set -euo pipefail
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
 
 JOBS="${JOBS:-2}"
 PACKAGES=(build-essential cmake pkg-config libgsl-dev libjansson-dev
           libcriterion-dev libmicrohttpd-dev libgnutls28-dev libsqlite3-dev
-          clang-format curl nodejs sqlite3 openssl)
+          clang-format curl nodejs sqlite3 openssl
+          clang libclang-rt-14-dev) # clang: the fuzz stage (libFuzzer, ASan)
 
 install_missing() {
     local missing=() pkg
@@ -107,7 +112,17 @@ else
     format_ok=0
 fi
 
+fuzz_ok=1
+FUZZ_SECONDS=${FUZZ_SECONDS:-75}
+if ((FUZZ_SECONDS > 0)); then
+    echo "run-all: === fuzz (${FUZZ_SECONDS} s per target) ==="
+    if ! FUZZ_PARALLEL=2 JOBS="$JOBS" bash tests/fuzz/run.sh "$FUZZ_SECONDS"; then
+        echo "run-all: fuzzing FAILED (see the fuzz: lines above)"
+        fuzz_ok=0
+    fi
+fi
+
 echo "$passed passed, $failed failed"
-if ((failed > 0 || format_ok == 0)); then
+if ((failed > 0 || format_ok == 0 || fuzz_ok == 0)); then
     exit 1
 fi

@@ -206,6 +206,21 @@ Test(http, every_error_class_is_a_problem_document, .init = hd_setup,
     expect_problem(&r, 413, "content-too-large", NULL);
     hh_free(&r);
     free(body);
+    /* headers only, no body sent: a client waiting for 100 Continue, and a
+     * declared body over the 16 MiB drain limit, get the 413 at once (RFC
+     * 9110 §10.1.1: a server may answer a final status instead of 100) */
+    static const char *const early[] = {
+        "POST /v1/predictions HTTP/1.1\r\nHost: x\r\nContent-Type: "
+        "application/json\r\nContent-Length: 2097152\r\nExpect: "
+        "100-continue\r\nConnection: close\r\n\r\n",
+        "POST /v1/predictions HTTP/1.1\r\nHost: x\r\nContent-Type: "
+        "application/json\r\nContent-Length: 20971520\r\nConnection: "
+        "close\r\n\r\n"};
+    for (size_t k = 0; k < 2; k++) {
+        hh_raw(hd.port, early[k], strlen(early[k]), &r);
+        expect_problem(&r, 413, "content-too-large", NULL);
+        hh_free(&r);
+    }
     /* the daemon still serves */
     hh_request(hd.port, "GET", "/healthz", NULL, NULL, NULL, NULL, &r);
     cr_expect(r.status == 200);

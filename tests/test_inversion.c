@@ -650,6 +650,43 @@ Test(inversion, likelihood_many_unidentified_directions) {
     ss_sampler_free(smp);
 }
 
+/* The likelihood's work budget (ss_budget.max_work): 300 per-shot readings
+ * at n = 12, d = 3 fit within the default, but with max_work = 10 000 units
+ * (a few evaluations) method likelihood stops with SS_EBUDGET naming
+ * max_work, and method auto falls back to the moments, deterministically
+ * (the count has no clock in it: two runs give the same values). */
+Test(inversion, likelihood_work_budget) {
+    const double p[3] = {0.5, 0.3, 0.2};
+    ss_sampler *smp = tu_sampler(3, p);
+    gsl_rng *rng = iv_rng(12);
+    ss_calibration cal = ss_calibration_default();
+    static double e[300];
+    iv_shots(smp, rng, 12, &cal, 300, e);
+    ss_run run = iv_per_shot(12, e, 300);
+    ss_analysis_request req = iv_request(3, &run, 1, SS_METHOD_LIKELIHOOD);
+    ss_analysis *a = iv_analyse(&req, "default budget");
+    cr_assert_eq(a->method, SS_METHOD_LIKELIHOOD);
+    ss_analysis_free(a);
+    req.budget.max_work = 10000;
+    ss_error err;
+    ss_error_clear(&err);
+    a = NULL;
+    cr_assert_eq(ss_analysis_run(&req, &a, &err), SS_EBUDGET, "%s",
+                 err.message);
+    cr_assert_str_eq(err.field, "max_work");
+    cr_assert_null(a);
+    req.method = SS_METHOD_AUTO;
+    ss_analysis *b1 = iv_analyse(&req, "auto, small budget");
+    ss_analysis *b2 = iv_analyse(&req, "auto, small budget again");
+    cr_assert_eq(b1->method, SS_METHOD_MOMENTS);
+    for (unsigned i = 0; i < 3; i++)
+        cr_assert_eq(b1->values[i], b2->values[i]);
+    ss_analysis_free(b1);
+    ss_analysis_free(b2);
+    gsl_rng_free(rng);
+    ss_sampler_free(smp);
+}
+
 /* symmetry-caution (core/src/analysis.c, SS__SYMMETRY_RATIO): the stated
  * criterion is spread·√C(n,2) >= 0.1.  For n = 24, C(24,2) = 276 and
  * √276 = 16.61, so spread 0.01 gives 0.166 (flag, on the 24-atom run 1 of

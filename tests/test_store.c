@@ -9,7 +9,9 @@
  * their analysis, forward migrations and the refusal of foreign files, the
  * mapping of a held lock to SS_EBUSY and of a page limit to SS_ESTOREFULL,
  * durability of acknowledged puts across kill -9 (with PRAGMA
- * integrity_check), and four threads writing at once.  The files are
+ * integrity_check), four threads writing at once, the migration of a
+ * schema-1 file with data, and the ownership and once-only finishing of
+ * reprocessing jobs (schema 2).  The files are
  * inspected through a separate raw sqlite3 connection where the contract
  * is about the file itself.  The calendar arithmetic is checked against
  * the C library's gmtime_r.
@@ -1151,4 +1153,174 @@ Test(store, generated_ids) {
     cr_expect(!store_id_valid("an_0123456789abcdef01234"));
     cr_expect(!store_id_valid("an_0123456789abcdeg0123"));
     cr_expect(!store_id_valid("bn_0123456789abcdef0123"));
+}
+
+/* ------------------------------------------------------------------------ */
+/* Schema 2 (issue 5): calibrations, revisions, jobs.                        */
+
+/* A file as a schema-1 build left it: step 1's SQL as it shipped, one
+ * analysis, user_version 1.  Opening it migrates it to the latest schema
+ * in place; the analysis is revision 1 of 1 with no calibration. */
+Test(store, migrates_a_schema_1_file_with_its_analyses) {
+    const char *path = ts_path("v1.db");
+    sqlite3 *db = NULL;
+    cr_assert(sqlite3_open(path, &db) == SQLITE_OK);
+    ts_raw_exec(
+        db,
+        "CREATE TABLE analyses (id TEXT PRIMARY KEY NOT NULL CONSTRAINT "
+        "id_form CHECK (length(id) = 23 AND id GLOB 'an_*'), created_at TEXT "
+        "NOT NULL CONSTRAINT created_at_form CHECK (length(created_at) = "
+        "24), label TEXT NOT NULL, levels INTEGER NOT NULL CONSTRAINT "
+        "levels_range CHECK (levels >= 0), method TEXT NOT NULL, "
+        "software_version TEXT NOT NULL, request_json TEXT NOT NULL "
+        "CONSTRAINT request_is_json CHECK (json_valid(request_json)), "
+        "result_json TEXT NOT NULL CONSTRAINT result_is_json CHECK "
+        "(json_valid(result_json)));"
+        "CREATE INDEX analyses_by_time ON analyses (created_at, id);"
+        "CREATE INDEX analyses_by_label ON analyses (label, created_at, id);"
+        "CREATE INDEX analyses_by_levels ON analyses (levels, created_at, "
+        "id);"
+        "CREATE TABLE idempotency_keys (key TEXT PRIMARY KEY NOT NULL, "
+        "fingerprint TEXT NOT NULL CONSTRAINT fingerprint_form CHECK "
+        "(length(fingerprint) = 64), analysis_id TEXT NOT NULL REFERENCES "
+        "analyses (id) ON DELETE CASCADE, created_at TEXT NOT NULL);"
+        "CREATE INDEX idempotency_keys_by_time ON idempotency_keys "
+        "(created_at);"
+        "INSERT INTO analyses VALUES ('an_00112233445566778899', "
+        "'2026-11-30T10:00:00.000Z', 'old', 3, 'moments', '0.1.0', "
+        "'{\"levels\":3}', '{\"flags\":[]}');"
+        "PRAGMA user_version = 1; PRAGMA journal_mode = WAL");
+    char mark[64];
+    snprintf(mark, sizeof mark, "PRAGMA application_id = %d",
+             STORE_SQLITE_APPLICATION_ID);
+    ts_raw_exec(db, mark);
+    sqlite3_close(db);
+    ts_handle h = ts_open_at(path, 0);
+    ss_error e;
+    ss_error_clear(&e);
+    store_record rec;
+    store_revision_info info;
+    cr_assert(store_get_revision(h.c, "an_00112233445566778899", 0, &rec, &info,
+                                 &e) == SS_OK,
+              "%s", e.message);
+    cr_expect_eq(info.revision, 1);
+    cr_expect_eq(info.revision_count, 1);
+    cr_expect_str_eq(info.calibration_name, "");
+    cr_expect_str_eq(rec.result_json, "{\"flags\":[]}");
+    cr_expect_str_eq(rec.request_json, "{\"levels\":3}");
+    store_record_release(&rec);
+    store_page p;
+    cr_assert(store_list(h.c, &(store_query){.limit = 5}, &p, &e) == SS_OK);
+    cr_expect_eq(p.count, 1);
+    store_page_release(&p);
+    ts_close(&h);
+    db = ts_raw(path);
+    cr_expect_eq(ts_raw_int(db, "PRAGMA user_version"),
+                 store_sqlite_schema_latest());
+    cr_expect_eq(ts_raw_int(db, "SELECT count(*) FROM calibrations"), 0);
+    sqlite3_close(db);
+}
+
+static void ts_calibration(store_conn *c, const char *name, double offset,
+                           const char *valid_from) {
+    store_calibration k;
+    memset(&k, 0, sizeof k);
+    snprintf(k.name, sizeof k.name, "%s", name);
+    store_time_now(k.created_at);
+    snprintf(k.valid_from, sizeof k.valid_from, "%s", valid_from);
+    k.cal = ss_calibration_default();
+    k.cal.offset = offset;
+    ss_error e;
+    ss_error_clear(&e);
+    cr_assert(store_calibration_put(c, &k, &e) == SS_OK, "%s", e.message);
+}
+
+/* Ownership is a compare-and-set: one claim wins; an item finishes once,
+ * only by the owner; the latest revision decides "unchanged". */
+Test(store, jobs_are_claimed_once_and_items_finish_once) {
+    ts_handle h = ts_open();
+    ts_calibration(h.c, "trap-q", 1.0, "2026-11-01T00:00:00.000Z");
+    ts_calibration(h.c, "trap-q", 2.0, "2026-11-01T00:00:00.000Z");
+    for (unsigned i = 0; i < 3; ++i) {
+        store_record r = ts_rec(i, i * 1000, "jobs");
+        snprintf(r.calibration_name, sizeof r.calibration_name, "trap-q");
+        r.calibration_version = 1;
+        ts_put_ok(h.c, &r, NULL, NULL);
+    }
+    ss_error e;
+    ss_error_clear(&e);
+    store_job_params p;
+    memset(&p, 0, sizeof p);
+    snprintf(p.calibration, sizeof p.calibration, "trap-q");
+    store_job job;
+    cr_assert(store_job_create(h.c, &p, "cli", NULL, &job, &e) == SS_OK, "%s",
+              e.message);
+    cr_expect_eq(job.total, 3);
+    cr_expect_str_eq(job.state, "queued");
+    int claimed = 0;
+    cr_assert(store_job_claim(h.c, job.id, "", "1:1", &claimed, &e) == SS_OK);
+    cr_expect(claimed);
+    cr_assert(store_job_claim(h.c, job.id, "", "2:2", &claimed, &e) == SS_OK);
+    cr_expect(!claimed, "a second claim on the old owner must lose");
+    store_job_item items[4];
+    size_t n = 0;
+    cr_assert(store_job_pending(h.c, job.id, 0, items, 4, &n, &e) == SS_OK);
+    cr_assert_eq(n, 3);
+    /* both versions valid from the same instant: the tie goes to 2 */
+    cr_expect_eq(items[0].version, 2);
+    store_revision_new rev = {.calibration_name = "trap-q",
+                              .calibration_version = 2,
+                              .software_version = "test",
+                              .method = "moments",
+                              .result_json = "{\"flags\":[]}"};
+    store_time_now(rev.created_at);
+    store_item_outcome what;
+    ss_status st =
+        store_job_item_finish(h.c, job.id, "2:2", items[0].seq,
+                              items[0].analysis_id, &rev, NULL, &what, &e);
+    cr_expect_eq(st, SS_ECONFLICT, "a runner that does not hold the job");
+    ss_error_clear(&e);
+    cr_assert(store_job_item_finish(h.c, job.id, "1:1", items[0].seq,
+                                    items[0].analysis_id, &rev, NULL, &what,
+                                    &e) == SS_OK,
+              "%s", e.message);
+    cr_expect_eq(what, STORE_ITEM_REVISED);
+    st = store_job_item_finish(h.c, job.id, "1:1", items[0].seq,
+                               items[0].analysis_id, &rev, NULL, &what, &e);
+    cr_expect_eq(st, SS_ECONFLICT, "an item finishes once");
+    ss_error_clear(&e);
+    /* the same version on an analysis whose latest revision has it:
+     * unchanged, nothing written (checked inside the transaction) */
+    cr_assert(store_job_item_finish(h.c, job.id, "1:1", items[1].seq,
+                                    items[1].analysis_id, &rev, NULL, &what,
+                                    &e) == SS_OK);
+    cr_expect_eq(what, STORE_ITEM_REVISED);
+    cr_assert(store_job_item_finish(h.c, job.id, "1:1", items[2].seq,
+                                    items[2].analysis_id, NULL, "broken", &what,
+                                    &e) == SS_OK);
+    cr_expect_eq(what, STORE_ITEM_FAILED);
+    cr_assert(store_job_finish(h.c, job.id, "1:1", &e) == SS_OK, "%s",
+              e.message);
+    cr_assert(store_job_get(h.c, job.id, &job, &e) == SS_OK);
+    cr_expect_str_eq(job.state, "failed");
+    cr_expect_eq(job.revised, 2);
+    cr_expect_eq(job.failed, 1);
+    /* a second job: the revised analyses are now unchanged */
+    store_job again;
+    cr_assert(store_job_create(h.c, &p, "cli", NULL, &again, &e) == SS_OK);
+    cr_assert(store_job_claim(h.c, again.id, "", "1:1", &claimed, &e) == SS_OK);
+    cr_assert(store_job_pending(h.c, again.id, 0, items, 4, &n, &e) == SS_OK);
+    cr_assert(store_job_item_finish(h.c, again.id, "1:1", items[0].seq,
+                                    items[0].analysis_id, &rev, NULL, &what,
+                                    &e) == SS_OK);
+    cr_expect_eq(what, STORE_ITEM_UNCHANGED);
+    store_record rec;
+    store_revision_info info;
+    cr_assert(store_get_revision(h.c, items[0].analysis_id, 0, &rec, &info,
+                                 &e) == SS_OK);
+    cr_expect_eq(info.revision, 2);
+    cr_expect_eq(info.calibration_version, 2);
+    cr_expect_str_eq(info.job_id, job.id);
+    store_record_release(&rec);
+    ts_close(&h);
 }

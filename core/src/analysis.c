@@ -318,7 +318,18 @@ static void ss__estimate_moments(ss_analysis *a, const ss_analysis_request *req,
         }
     } else {
         double lo[SS_LEVELS_MAX], hi[SS_LEVELS_MAX];
-        ss__underdetermined_point(d, theta, use_p3, lo, hi, p);
+        if (ss__underdetermined_point(d, theta, use_p3, lo, hi, p) == 0) {
+            /* θ on the region's edge where no solution was resolved (e.g.
+             * P2 projected to 1/d): the ranges shrink to the point, which
+             * falls back to the uniform spectrum if it is not usable */
+            int usable = 1;
+            for (unsigned i = 0; i < d; i++)
+                usable &= isfinite(p[i]) && p[i] >= 0 && p[i] <= 1;
+            for (unsigned i = 0; i < d; i++) {
+                p[i] = usable ? p[i] : 1.0 / d;
+                lo[i] = hi[i] = p[i];
+            }
+        }
         memcpy(a->values, p, d * sizeof *p);
         memcpy(a->feasible_lower, lo, d * sizeof *lo);
         memcpy(a->feasible_upper, hi, d * sizeof *hi);
@@ -801,6 +812,14 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         }
         if (st != SS_OK)
             goto done;
+        /* the root and projection maps can leave two equal eigenvalues one
+         * rounding apart in the wrong order: restore the order */
+        for (unsigned i = 0; i + 1 < a->levels; i++)
+            if (a->values[i + 1] > a->values[i]) {
+                qsort(a->values, a->levels, sizeof *a->values,
+                      ss__cmp_double_desc);
+                break;
+            }
         ss__set_intervals(a, zc);
         ss__flags_runs(a, req, rs, zc);
     }

@@ -63,6 +63,9 @@ typedef struct {
     size_t level_of_off[SS_RUNS_MAX + 1];
     ss_error *err;
     int failed;
+    uint64_t work, work_max; /* see ss_budget.max_work */
+    uint64_t work_per_eval;
+    int over; /* work_max passed: evaluations stop */
 } ss__lik;
 
 static void ss__lik_release(ss__lik *L) {
@@ -81,6 +84,11 @@ static void ss__lik_release(ss__lik *L) {
 
 /* Probabilities per content level for every distinct atom number at p. */
 static int ss__lik_update(ss__lik *L, const double *p) {
+    if (L->over || L->work_max - L->work < L->work_per_eval) {
+        L->over = 1; /* cheap from here on: the fit winds down */
+        return 0;
+    }
+    L->work += L->work_per_eval;
     for (size_t i = 0; i < L->ndist; i++) {
         ss_error e;
         ss_error_clear(&e);
@@ -157,6 +165,8 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
                               const double *p0, ss_error *err) {
     memset(L, 0, sizeof *L);
     L->d = d;
+    L->work_max =
+        budget && budget->max_work ? budget->max_work : SS_BUDGET_WORK_DEFAULT;
     L->cal = cal;
     L->sigma = cal->noise_sd;
     L->R = R;
@@ -238,16 +248,49 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
             if (lr->kernel == NULL)
                 return ss_error_set(err, SS_ENOMEM, "", NULL);
             double norm = 1.0 / (L->sigma * sqrt(2.0 * SS__PI));
-            for (size_t s = 0; s < K; s++)
+            for (size_t s = 0; s < K; s++) {
+                double nearest = HUGE_VAL;
                 for (size_t l = 0; l < nl; l++) {
                     double e =
                         ss_calibration_energy(cal, rs[r].atoms, lv->content[l]);
                     double u = (runs[r].energies[s] - e) / L->sigma;
+                    nearest = fmin(nearest, fabs(u));
                     if (fabs(u) <= SS__KERNEL_SIGMAS)
                         lr->kernel[s * nl + l] = norm * exp(-0.5 * u * u);
                 }
+                if (!(nearest <= SS__KERNEL_SIGMAS)) {
+                    char field[64];
+                    snprintf(field, sizeof field, "runs[%zu].energies[%zu]", r,
+                             s);
+                    return ss_error_set(
+                        err, SS_EINVAL, field,
+                        "energy %.10g is %.3g noise standard deviations "
+                        "(noise_sd %.4g) from the energy of every Young "
+                        "diagram of %u atoms with %u levels: no diagram can "
+                        "have produced it (check the calibration)",
+                        runs[r].energies[s], nearest, L->sigma, rs[r].atoms, d);
+                }
+            }
         }
     }
+    /* the cost of one evaluation, in ss_budget.max_work units: the
+     * branching recursion sweeps the table once per row it adds, ranking
+     * each cell in O(d) (cells·d²), and the probabilities visit every
+     * diagram's d rows */
+    uint64_t per = 1;
+    for (size_t i = 0; i < L->ndist; i++) {
+        uint64_t cells =
+            ss_diagram_table_cells(L->dists[i]->diagrams->atoms, d);
+        uint64_t dd = (uint64_t)d * d;
+        uint64_t sweep = cells > UINT64_MAX / dd ? UINT64_MAX : cells * dd;
+        per = ss__sat_add(per, ss__sat_add(sweep, L->dists[i]->diagrams->count *
+                                                      (uint64_t)d));
+    }
+    for (size_t r = 0; r < R; r++)
+        if (L->runs[r].kernel != NULL)
+            per = ss__sat_add(per, (uint64_t)runs[r].energy_count *
+                                       L->levels[L->runs[r].dist_index]->count);
+    L->work_per_eval = per;
     return SS_OK;
 }
 
@@ -532,11 +575,13 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
             }
         }
     }
-    if (!(best < SS__NLL_ZERO)) {
+    if (!(best < SS__NLL_ZERO) && !L.over) {
         st = ss_error_set(err, SS_EINTERNAL, "runs",
                           "the likelihood is zero everywhere tried");
         goto done;
     }
+    if (L.over)
+        goto over;
     memset(out, 0, sizeof *out);
     memcpy(out->p, best_p, d * sizeof *best_p);
     out->neg_log_likelihood = best;
@@ -622,6 +667,15 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
         out->profile_ok =
             ss__lik_profile(&L, mz, x, step, best_p, best, profile_z,
                             out->profile_lower, out->profile_upper);
+over:
+    if (st == SS_OK && L.over)
+        st = ss_error_set(err, SS_EBUDGET, "max_work",
+                          "the likelihood fit needed more than %llu work "
+                          "units (table sweeps and shots × levels per "
+                          "evaluation, %llu each): use method moments, fewer "
+                          "levels or fewer atoms",
+                          (unsigned long long)L.work_max,
+                          (unsigned long long)L.work_per_eval);
 done:
     gsl_multimin_fminimizer_free(mz);
     gsl_vector_free(x);

@@ -8,8 +8,9 @@
 //     response only carries problems of its own status.
 //  5. House rules of the contract: the contract's routes are all there,
 //     request bodies reject unknown fields at every level, errors are
-//     application/problem+json, every /v1 operation names its role, POST
-//     routes list 400/413/415/422, /v1 routes list 401/403/405.
+//     application/problem+json, every /v1 operation names its role (admin
+//     for the calibration PUT and reprocessing), POST and PUT routes list
+//     400/413/415/422, /v1 routes list 401/403/405.
 //
 // Usage: node check_spec.mjs        (exit 0 when every check passes)
 import fs from 'node:fs';
@@ -30,18 +31,31 @@ import {
 
 const t = new Tally();
 
-// The routes of the service contract (issue 4), method and path template.
-const CONTRACT_ROUTES = [
-  'POST /v1/predictions',
-  'POST /v1/candidates',
-  'POST /v1/simulations',
-  'POST /v1/analyses',
-  'GET /v1/analyses',
-  'GET /v1/analyses/{id}',
-  'GET /healthz',
-  'GET /metrics',
-];
-const OPEN_PATHS = new Set(['/healthz', '/metrics']);
+// The routes of the service contract (issues 4 and 5), method and path
+// template, with the role each needs (null: open).
+const CONTRACT = new Map([
+  ['POST /v1/predictions', 'write'],
+  ['POST /v1/candidates', 'write'],
+  ['POST /v1/simulations', 'write'],
+  ['POST /v1/analyses', 'write'],
+  ['GET /v1/analyses', 'read'],
+  ['GET /v1/analyses/{id}', 'read'],
+  ['GET /v1/analyses/{id}/revisions', 'read'],
+  ['PUT /v1/calibrations/{name}', 'admin'],
+  ['GET /v1/calibrations/{name}', 'read'],
+  ['GET /v1/calibrations', 'read'],
+  ['POST /v1/reprocessing', 'admin'],
+  ['GET /v1/jobs/{id}', 'read'],
+  ['GET /healthz', null],
+  ['GET /metrics', null],
+  // issue 6: pages and figures for people (server/handlers_pages.c)
+  ['GET /v1/analyses/{id}/figures/{name}.svg', 'read'],
+  ['GET /', 'read'],
+  ['GET /analyses/{id}', 'read'],
+  ['GET /favicon.ico', null],
+]);
+const CONTRACT_ROUTES = [...CONTRACT.keys()];
+const OPEN_PATHS = new Set(['/healthz', '/metrics', '/favicon.ico']);
 
 async function main() {
   console.log(`# spec: ${path.relative(process.cwd(), SPEC_PATH) || SPEC_PATH}`);
@@ -256,7 +270,7 @@ function checkHouseRules(raw, spec) {
     if (OPEN_PATHS.has(p)) {
       if (!open) problems.push('should be open (security: [])');
     } else {
-      const want = method === 'GET' ? 'read' : 'write';
+      const want = CONTRACT.get(where) || (method === 'GET' ? 'read' : 'write');
       if (open || roles.length !== 1 || roles[0] !== want) problems.push(`security roles ${JSON.stringify(roles)}, want ["${want}"]`);
       for (const c of ['401', '403', '405']) if (!op.responses[c]) problems.push(`no ${c} response`);
       if (op.responses['401'] && !op.responses['401'].headers?.['WWW-Authenticate']?.required)
@@ -264,7 +278,7 @@ function checkHouseRules(raw, spec) {
     }
     if (op.responses['405'] && !op.responses['405'].headers?.Allow?.required) problems.push('405 without a required Allow header');
     if (op.responses['503'] && !op.responses['503'].headers?.['Retry-After']) problems.push('503 does not document Retry-After');
-    if (method === 'POST') {
+    if (method === 'POST' || method === 'PUT') {
       for (const c of ['400', '413', '415', '422']) if (!op.responses[c]) problems.push(`no ${c} response`);
       const content = op.requestBody?.content || {};
       const types = Object.keys(content);

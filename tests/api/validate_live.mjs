@@ -8,13 +8,15 @@
 // for JSON Schema 2020-12 with ajv-formats).  Problem responses are checked
 // the same way.  Besides the schemas it checks what the contract promises
 // beyond them (JSON pointers of faulty fields, idempotent replay, keyset
-// pagination, metrics that count what was sent, a clean SIGTERM).  A second
-// daemon with a tokens file checks 401/403.  Numerical spot checks use
+// pagination, metrics that count what was sent, a clean SIGTERM).  Another
+// daemon covers named calibrations, analyses by reference, revisions and
+// reprocessing jobs (issue 5); one with a tokens file checks 401/403.  Numerical spot checks use
 // identities of the model, not output copied from swapspec:
 //   E[c] = C(n,2)·P2 (docs: /work/shared/domain.md §2, exact identity; we
 //   allow 1e-9 relative for the printed 15 significant digits), content sums
 //   by hand (c(4,1,1) = c(3,3) = 3), and the calibration formula
-//   E = offset + pair_shift·C(n,2) + exchange·c (samples/README.md).
+//   E = offset + pair_shift·C(n,2) + exchange·c (samples/README.md), so that
+//   an offset change Δ moves the P2 read from a mean by −Δ/(exchange·C(n,2)).
 //
 // Usage: node validate_live.mjs path/to/swapspec
 // Prints one line per check and ends with "N passed, N failed".
@@ -789,6 +791,207 @@ async function phaseOpen(bin, version) {
 }
 
 // ---------------------------------------------------------------------------
+// Phase 1b: named calibrations, analyses by reference, revisions and
+// reprocessing jobs (issue 5), on a daemon of their own.
+
+// Polls GET /v1/jobs/{id} until the job is done or failed (30 s at most).
+async function waitForJob(go, id) {
+  const until = Date.now() + 30000;
+  for (;;) {
+    const res = await go({ method: 'GET', path: `/v1/jobs/${id}` });
+    let body = null;
+    try {
+      body = JSON.parse(res.text);
+    } catch {
+      /* judged by the caller */
+    }
+    if (!body || body.state === 'done' || body.state === 'failed' || Date.now() > until) return res;
+    await new Promise((r) => setTimeout(r, 100));
+  }
+}
+
+async function phaseCalibrations(bin) {
+  const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'swapspec-api-cal-'));
+  const d = new Daemon(bin, 'calibrations');
+  try {
+    await d.start(['--threads', '4'], dir);
+    t.ok(`calibrations: daemon listens on 127.0.0.1:${d.port}`);
+  } catch (e) {
+    t.fail('calibrations: daemon starts', e.message);
+    await d.stop();
+    return;
+  }
+  const go = async (o) => {
+    const res = await call(d.port, o);
+    if (res.status !== undefined) d.answered++;
+    return res;
+  };
+  const calRoute = '/v1/calibrations/{name}';
+  let r = await go({ method: 'GET', path: '/v1/calibrations' });
+  let b = expectResponse('GET /v1/calibrations (none yet)', r, { route: '/v1/calibrations', method: 'GET', status: 200 });
+  if (b) t.check('calibrations: the list starts empty', b.items.length === 0, JSON.stringify(b));
+
+  // Two versions of trap A: v1 from Monday, v2 (offset +0.31 Hz) from Friday.
+  const v1Body = { ...TRAP_A, valid_from: '2026-11-23T00:00:00Z', note: 'weekly calibration, Monday' };
+  r = await go({ method: 'PUT', path: '/v1/calibrations/boxtrap-a', headers: json, body: v1Body });
+  const v1 = expectResponse('PUT /v1/calibrations/boxtrap-a (version 1)', r, { route: calRoute, method: 'PUT', status: 201 });
+  if (v1) {
+    t.check('calibrations: the first PUT is version 1 at Location ?version=1', v1.version === 1 && r.headers.location === '/v1/calibrations/boxtrap-a?version=1', `version ${v1.version}, Location ${r.headers.location}`);
+    t.check('calibrations: the version echoes the body (numbers, note, valid_from in the record form)', v1.offset === TRAP_A.offset && v1.exchange === TRAP_A.exchange && v1.unit === 'Hz' && v1.note === v1Body.note && v1.valid_from === '2026-11-23T00:00:00.000Z' && v1.coupling_spread === 0, JSON.stringify(v1));
+  }
+  const delta = 0.31;
+  const v2Body = { ...TRAP_A, offset: TRAP_A.offset + delta, valid_from: '2026-11-27T00:00:00+00:00' };
+  r = await go({ method: 'PUT', path: '/v1/calibrations/boxtrap-a', headers: json, body: v2Body });
+  const v2 = expectResponse('PUT /v1/calibrations/boxtrap-a (version 2)', r, { route: calRoute, method: 'PUT', status: 201 });
+  if (v2) t.check('calibrations: the second PUT is version 2 with an empty note', v2.version === 2 && v2.note === '', JSON.stringify(v2));
+  r = await go({ method: 'GET', path: '/v1/calibrations/boxtrap-a' });
+  b = expectResponse('GET /v1/calibrations/boxtrap-a (latest)', r, { route: calRoute, method: 'GET', status: 200 });
+  if (b && v2) t.check('calibrations: GET gives the latest version', isDeepStrictEqual(b, v2), JSON.stringify(b));
+  r = await go({ method: 'GET', path: '/v1/calibrations/boxtrap-a?version=1' });
+  b = expectResponse('GET /v1/calibrations/boxtrap-a?version=1', r, { route: calRoute, method: 'GET', status: 200 });
+  if (b && v1) t.check('calibrations: version 1 is unchanged after version 2', isDeepStrictEqual(b, v1), JSON.stringify(b));
+  expectProblem('GET /v1/calibrations/boxtrap-a?version=3 → 404', await go({ method: 'GET', path: '/v1/calibrations/boxtrap-a?version=3' }), { route: calRoute, method: 'GET', status: 404, type: 'not-found' });
+  expectProblem('GET /v1/calibrations/boxtrap-a?version=0 → 422', await go({ method: 'GET', path: '/v1/calibrations/boxtrap-a?version=0' }), { route: calRoute, method: 'GET', status: 422, type: 'invalid-argument', pointer: '/version' });
+  expectProblem('GET /v1/calibrations/boxtrap-z → 404', await go({ method: 'GET', path: '/v1/calibrations/boxtrap-z' }), { route: calRoute, method: 'GET', status: 404, type: 'not-found' });
+  const badPuts = [
+    ['exchange 0', '/v1/calibrations/boxtrap-a', { ...TRAP_A, exchange: 0 }, '/exchange'],
+    ['negative noise_sd', '/v1/calibrations/boxtrap-a', { ...TRAP_A, noise_sd: -0.1 }, '/noise_sd'],
+    ['missing offset', '/v1/calibrations/boxtrap-a', { pair_shift: 0.8, exchange: -3.1, noise_sd: 0.6 }, '/offset'],
+    ['unknown field', '/v1/calibrations/boxtrap-a', { ...TRAP_A, gain: 2 }, '/gain'],
+    ['valid_from not RFC 3339', '/v1/calibrations/boxtrap-a', { ...TRAP_A, valid_from: 'last Monday' }, '/valid_from'],
+    ['note of 501 bytes', '/v1/calibrations/boxtrap-a', { ...TRAP_A, note: 'n'.repeat(501) }, '/note'],
+    ['name with capitals', '/v1/calibrations/Boxtrap-A', TRAP_A, '/name'],
+    ['name of 65 characters', `/v1/calibrations/${'a'.repeat(65)}`, TRAP_A, '/name'],
+  ];
+  for (const [why, p, body, pointer] of badPuts)
+    expectProblem(`PUT ${p.length > 40 ? `${p.slice(0, 40)}…` : p} ${why} → 422`, await go({ method: 'PUT', path: p, headers: json, body }), { route: calRoute, method: 'PUT', status: 422, type: 'invalid-argument', pointer });
+  expectProblem('PUT /v1/calibrations/boxtrap-a malformed JSON → 400', await go({ method: 'PUT', path: '/v1/calibrations/boxtrap-a', headers: json, body: '{"offset": 1,' }), { route: calRoute, method: 'PUT', status: 400, type: 'malformed-input' });
+  expectProblem('PUT /v1/calibrations/boxtrap-a text/plain → 415', await go({ method: 'PUT', path: '/v1/calibrations/boxtrap-a', headers: { 'Content-Type': 'text/plain' }, body: JSON.stringify(TRAP_A) }), { route: calRoute, method: 'PUT', status: 415, type: 'unsupported-media-type' });
+  r = await go({ method: 'GET', path: '/v1/calibrations/boxtrap-a?version=3' });
+  t.check('calibrations: refused PUTs stored no version', r.status === 404, describe(r));
+
+  // Analyses by reference.  One summary run of 4 atoms on 3 levels: two
+  // observations (mean, variance) for two unknowns (P2, P3), so the fit
+  // reads P2 from the mean exactly: E = offset + V·C(n,2) + J·C(n,2)·P2
+  // (domain notes §2).  (With 2 levels P3 follows from P2 and the variance
+  // pulls on P2 too.)  p = (0.6, 0.3, 0.1): P2 = 0.46, P3 = 0.244.
+  const n = 4;
+  const N = comb2(n);
+  const P2 = 0.46;
+  const P3 = 0.244;
+  const varC = N * (1 + 2 * (n - 2) * P3 + comb2(n - 2) * P2 * P2) - N * N * P2 * P2;
+  const mean = TRAP_A.offset + TRAP_A.pair_shift * N + TRAP_A.exchange * N * P2;
+  const variance = TRAP_A.exchange ** 2 * varC + TRAP_A.noise_sd ** 2;
+  const byRef = (measuredAt, extra = {}) => ({
+    levels: 3,
+    label: 'quillfeather/boxtrap-a/by-reference',
+    calibration: { ref: 'boxtrap-a', ...extra },
+    measured_at: measuredAt,
+    runs: [{ atoms: n, shots: 400, mean_energy: mean, energy_variance: variance }],
+    method: 'moments',
+  });
+  const p2Of = (cal) => (mean - cal.offset - cal.pair_shift * N) / (cal.exchange * N);
+  r = await go({ method: 'POST', path: '/v1/analyses', headers: json, body: byRef('2026-11-25T14:00:00+01:00') });
+  const tue = expectResponse('POST /v1/analyses by reference, measured Tuesday', r, { route: '/v1/analyses', method: 'POST', status: 201 });
+  if (tue) {
+    const c = tue.result.calibration;
+    t.check('by reference: Tuesday resolves to version 1 (source ref, name, version, valid_from)', c.source === 'ref' && c.name === 'boxtrap-a' && c.version === 1 && c.offset === TRAP_A.offset && c.valid_from === '2026-11-23T00:00:00.000Z', JSON.stringify(c));
+    t.check('by reference: revision 1 of 1', tue.revision === 1 && tue.revision_count === 1, `${tue.revision}/${tue.revision_count}`);
+    t.check('by reference: P2 = (E − offset − V·C(n,2)) / (J·C(n,2)) with version 1 (rel. 1e-9)', relClose(tue.result.power_sums.p2.value, p2Of(TRAP_A), 1e-9), `p2 ${tue.result.power_sums.p2.value}`);
+  }
+  r = await go({ method: 'POST', path: '/v1/analyses', headers: json, body: byRef('2026-11-28T09:30:00Z') });
+  const sat = expectResponse('POST /v1/analyses by reference, measured Saturday', r, { route: '/v1/analyses', method: 'POST', status: 201 });
+  if (sat) t.check('by reference: Saturday resolves to version 2', sat.result.calibration.version === 2, JSON.stringify(sat.result.calibration));
+  r = await go({ method: 'POST', path: '/v1/analyses', headers: json, body: { ...byRef('2026-11-25T14:00:00Z', { version: 2 }) } });
+  const pinned = expectResponse('POST /v1/analyses by reference, version 2 pinned', r, { route: '/v1/analyses', method: 'POST', status: 201 });
+  if (pinned) t.check('by reference: a pinned version wins over the time', pinned.result.calibration.version === 2, JSON.stringify(pinned.result.calibration));
+  const badRefs = [
+    ['measured before any version', byRef('2026-11-20T00:00:00Z'), '/calibration/ref'],
+    ['an unknown name', { ...byRef('2026-11-25T00:00:00Z'), calibration: { ref: 'boxtrap-q' } }, '/calibration/ref'],
+    ['a name with capitals', { ...byRef('2026-11-25T00:00:00Z'), calibration: { ref: 'BoxTrap' } }, '/calibration/ref'],
+    ['a version that does not exist', byRef('2026-11-25T00:00:00Z', { version: 9 }), '/calibration/version'],
+    ['ref mixed with numbers', byRef('2026-11-25T00:00:00Z', { offset: 1 }), '/calibration/offset'],
+    ['measured_at not RFC 3339', byRef('Tuesday'), '/measured_at'],
+  ];
+  for (const [why, body, pointer] of badRefs)
+    expectProblem(`POST /v1/analyses by reference, ${why} → 422`, await go({ method: 'POST', path: '/v1/analyses', headers: json, body }), { route: '/v1/analyses', method: 'POST', status: 422, type: 'invalid-argument', pointer });
+
+  // Version 3 (offset +2δ) valid from Monday noon: Tuesday's analysis now
+  // falls under it; Saturday's stays with version 2.
+  const v3Cal = { ...TRAP_A, offset: TRAP_A.offset + 2 * delta };
+  r = await go({ method: 'PUT', path: '/v1/calibrations/boxtrap-a', headers: json, body: { ...v3Cal, valid_from: '2026-11-23T12:00:00Z', note: 'Monday re-measured' } });
+  expectResponse('PUT /v1/calibrations/boxtrap-a (version 3, valid from Monday noon)', r, { route: calRoute, method: 'PUT', status: 201 });
+  r = await go({ method: 'GET', path: '/v1/calibrations' });
+  b = expectResponse('GET /v1/calibrations', r, { route: '/v1/calibrations', method: 'GET', status: 200 });
+  if (b) t.check('calibrations: one name with 3 versions', b.items.length === 1 && b.items[0].name === 'boxtrap-a' && b.items[0].latest_version === 3 && b.items[0].count === 3 && b.items[0].valid_from === '2026-11-23T12:00:00.000Z', JSON.stringify(b));
+
+  r = await go({ method: 'POST', path: '/v1/reprocessing', headers: json, body: { calibration: 'boxtrap-a' } });
+  const job = expectResponse('POST /v1/reprocessing (boxtrap-a, versions by time)', r, { route: '/v1/reprocessing', method: 'POST', status: 202 });
+  if (job) {
+    t.check('reprocessing: Location is /v1/jobs/{id} of the body; 3 analyses selected', r.headers.location === `/v1/jobs/${job.id}` && job.total === 3, `Location ${r.headers.location}, total ${job.total}`);
+    r = await waitForJob(go, job.id);
+    b = expectResponse('GET /v1/jobs/{id} (finished)', r, { route: '/v1/jobs/{id}', method: 'GET', status: 200 });
+    // Without a version every analysis takes the version valid at its time
+    // (the pinned one too): Tuesday's two move to version 3, Saturday's
+    // stays on version 2.
+    if (b) t.check('reprocessing: done; both Tuesday analyses revised, Saturday unchanged', b.state === 'done' && b.done === 3 && b.revised === 2 && b.unchanged === 1 && b.failed === 0 && b.started_at && b.finished_at, JSON.stringify(b));
+  }
+  if (tue) {
+    r = await go({ method: 'GET', path: `/v1/analyses/${tue.id}` });
+    b = expectResponse('GET /v1/analyses/{id} after reprocessing (revision 2)', r, { route: '/v1/analyses/{id}', method: 'GET', status: 200 });
+    if (b) {
+      t.check('revisions: the record shows revision 2 of 2 with its job and version 3', b.revision === 2 && b.revision_count === 2 && job && b.job_id === job.id && b.result.calibration.version === 3 && typeof b.revised_at === 'string', JSON.stringify({ revision: b.revision, count: b.revision_count, job: b.job_id, cal: b.result.calibration }));
+      // Offset +Δ shifts P2 by −Δ/(J·C(n,2)) (the mean-energy identity above).
+      const shift = b.result.power_sums.p2.value - tue.result.power_sums.p2.value;
+      const want = -(2 * delta) / (TRAP_A.exchange * N);
+      t.check(`revisions: P2 moved by −Δ/(J·C(n,2)) = ${want.toFixed(6)} (rel. 1e-9)`, relClose(shift, want, 1e-9), `shift ${shift}`);
+      t.check('revisions: request and created_at are the original ones', isDeepStrictEqual(b.request, tue.request) && b.created_at === tue.created_at);
+    }
+    r = await go({ method: 'GET', path: `/v1/analyses/${tue.id}?revision=1` });
+    b = expectResponse('GET /v1/analyses/{id}?revision=1', r, { route: '/v1/analyses/{id}', method: 'GET', status: 200 });
+    if (b) t.check('revisions: revision 1 is the record as first stored (result unchanged)', isDeepStrictEqual(b.result, tue.result) && b.revision === 1 && b.revision_count === 2, JSON.stringify({ revision: b.revision, count: b.revision_count }));
+    expectProblem('GET /v1/analyses/{id}?revision=3 → 404', await go({ method: 'GET', path: `/v1/analyses/${tue.id}?revision=3` }), { route: '/v1/analyses/{id}', method: 'GET', status: 404, type: 'not-found' });
+    expectProblem('GET /v1/analyses/{id}?revision=two → 422', await go({ method: 'GET', path: `/v1/analyses/${tue.id}?revision=two` }), { route: '/v1/analyses/{id}', method: 'GET', status: 422, type: 'invalid-argument', pointer: '/revision' });
+    r = await go({ method: 'GET', path: `/v1/analyses/${tue.id}/revisions` });
+    b = expectResponse('GET /v1/analyses/{id}/revisions', r, { route: '/v1/analyses/{id}/revisions', method: 'GET', status: 200 });
+    if (b) t.check('revisions: two, oldest first, versions 1 then 3, the first without a job', b.id === tue.id && b.revisions.length === 2 && b.revisions[0].revision === 1 && b.revisions[0].job_id === null && b.revisions[0].calibration.version === 1 && b.revisions[1].calibration.version === 3 && job && b.revisions[1].job_id === job.id && isDeepStrictEqual(b.revisions[0].result, tue.result), JSON.stringify(b.revisions.map((x) => [x.revision, x.calibration, x.job_id])));
+  }
+  expectProblem('GET /v1/analyses/{id}/revisions of an unknown id → 404', await go({ method: 'GET', path: '/v1/analyses/an_00000000000000000000/revisions' }), { route: '/v1/analyses/{id}/revisions', method: 'GET', status: 404, type: 'not-found' });
+
+  // Running the same job again writes nothing.
+  r = await go({ method: 'POST', path: '/v1/reprocessing', headers: json, body: { calibration: 'boxtrap-a' } });
+  const again = expectResponse('POST /v1/reprocessing again', r, { route: '/v1/reprocessing', method: 'POST', status: 202 });
+  if (again) {
+    b = JSON.parse((await waitForJob(go, again.id)).text || 'null');
+    t.check('reprocessing: the second run finds everything unchanged', b && b.state === 'done' && b.unchanged === 3 && b.revised === 0, JSON.stringify(b));
+  }
+  // A pinned version for one label, by the creation window.
+  r = await go({ method: 'POST', path: '/v1/reprocessing', headers: json, body: { calibration: 'boxtrap-a', version: 1, label: 'quillfeather/boxtrap-a/by-reference', since: '2000-01-01T00:00:00Z', until: '2999-01-01T00:00:00Z' } });
+  const pin = expectResponse('POST /v1/reprocessing with version, label, since and until', r, { route: '/v1/reprocessing', method: 'POST', status: 202 });
+  if (pin) {
+    b = JSON.parse((await waitForJob(go, pin.id)).text || 'null');
+    t.check('reprocessing: version 1 for all: Tuesday (now on 3), Saturday and the pinned one revised', b && b.state === 'done' && b.revised === 3 && b.parameters.version === 1 && b.parameters.since === '2000-01-01T00:00:00.000Z', JSON.stringify(b));
+  }
+  const badJobs = [
+    ['an unknown calibration', { calibration: 'boxtrap-q' }, '/calibration'],
+    ['no calibration', { version: 1 }, '/calibration'],
+    ['a version that does not exist', { calibration: 'boxtrap-a', version: 4 }, '/version'],
+    ['version 0', { calibration: 'boxtrap-a', version: 0 }, '/version'],
+    ['since not RFC 3339', { calibration: 'boxtrap-a', since: 'last week' }, '/since'],
+    ['an unknown field', { calibration: 'boxtrap-a', dry_run: true }, '/dry_run'],
+  ];
+  for (const [why, body, pointer] of badJobs)
+    expectProblem(`POST /v1/reprocessing with ${why} → 422`, await go({ method: 'POST', path: '/v1/reprocessing', headers: json, body }), { route: '/v1/reprocessing', method: 'POST', status: 422, type: 'invalid-argument', pointer });
+  expectProblem('POST /v1/reprocessing malformed JSON → 400', await go({ method: 'POST', path: '/v1/reprocessing', headers: json, body: '{"calibration":' }), { route: '/v1/reprocessing', method: 'POST', status: 400, type: 'malformed-input' });
+  expectProblem('GET /v1/jobs/{id} unknown → 404', await go({ method: 'GET', path: '/v1/jobs/job_00000000000000000000' }), { route: '/v1/jobs/{id}', method: 'GET', status: 404, type: 'not-found' });
+  expectProblem('DELETE /v1/calibrations/boxtrap-a → 405', await go({ method: 'DELETE', path: '/v1/calibrations/boxtrap-a' }), { route: calRoute, method: 'DELETE', status: 405, type: 'method-not-allowed' });
+
+  await stopAndCheck(d, 'calibrations');
+  checkLogLines(d, []);
+  fs.rmSync(dir, { recursive: true, force: true });
+}
+
+// ---------------------------------------------------------------------------
 // Phase 2: a tokens file; 401 and 403.
 
 async function phaseTokens(bin) {
@@ -827,6 +1030,22 @@ async function phaseTokens(bin) {
   expectResponse('tokens: GET /v1/analyses with a read token', await go({ method: 'GET', path: '/v1/analyses', headers: auth(tok.read) }), { route: '/v1/analyses', method: 'GET', status: 200 });
   expectResponse('tokens: GET /v1/analyses with an admin token', await go({ method: 'GET', path: '/v1/analyses', headers: auth(tok.admin) }), { route: '/v1/analyses', method: 'GET', status: 200 });
   expectProblem('tokens: GET /v1/analyses/{id} without a token → 401', await go({ method: 'GET', path: '/v1/analyses/an_00000000000000000000' }), { route: '/v1/analyses/{id}', method: 'GET', status: 401, type: 'unauthorized' });
+  // Calibrations and reprocessing: only admin may write.
+  const calPath = '/v1/calibrations/boxtrap-b';
+  const calRoute = '/v1/calibrations/{name}';
+  expectProblem('tokens: PUT /v1/calibrations/{name} without a token → 401', await go({ method: 'PUT', path: calPath, headers: json, body: TRAP_B }), { route: calRoute, method: 'PUT', status: 401, type: 'unauthorized' });
+  expectProblem('tokens: PUT /v1/calibrations/{name} with a read token → 403', await go({ method: 'PUT', path: calPath, headers: { ...json, ...auth(tok.read) }, body: TRAP_B }), { route: calRoute, method: 'PUT', status: 403, type: 'forbidden' });
+  expectProblem('tokens: PUT /v1/calibrations/{name} with a write token → 403', await go({ method: 'PUT', path: calPath, headers: { ...json, ...auth(tok.write) }, body: TRAP_B }), { route: calRoute, method: 'PUT', status: 403, type: 'forbidden' });
+  expectResponse('tokens: PUT /v1/calibrations/{name} with an admin token', await go({ method: 'PUT', path: calPath, headers: { ...json, ...auth(tok.admin) }, body: TRAP_B }), { route: calRoute, method: 'PUT', status: 201 });
+  expectResponse('tokens: GET /v1/calibrations/{name} with a read token', await go({ method: 'GET', path: calPath, headers: auth(tok.read) }), { route: calRoute, method: 'GET', status: 200 });
+  expectProblem('tokens: GET /v1/calibrations without a token → 401', await go({ method: 'GET', path: '/v1/calibrations' }), { route: '/v1/calibrations', method: 'GET', status: 401, type: 'unauthorized' });
+  expectResponse('tokens: GET /v1/calibrations with a read token', await go({ method: 'GET', path: '/v1/calibrations', headers: auth(tok.read) }), { route: '/v1/calibrations', method: 'GET', status: 200 });
+  const jobBody = { calibration: 'boxtrap-b' };
+  expectProblem('tokens: POST /v1/reprocessing with a write token → 403', await go({ method: 'POST', path: '/v1/reprocessing', headers: { ...json, ...auth(tok.write) }, body: jobBody }), { route: '/v1/reprocessing', method: 'POST', status: 403, type: 'forbidden' });
+  const jr = await go({ method: 'POST', path: '/v1/reprocessing', headers: { ...json, ...auth(tok.admin) }, body: jobBody });
+  const jb = expectResponse('tokens: POST /v1/reprocessing with an admin token', jr, { route: '/v1/reprocessing', method: 'POST', status: 202 });
+  if (jb) expectResponse('tokens: GET /v1/jobs/{id} with a read token', await go({ method: 'GET', path: `/v1/jobs/${jb.id}`, headers: auth(tok.read) }), { route: '/v1/jobs/{id}', method: 'GET', status: 200 });
+  expectProblem('tokens: GET /v1/jobs/{id} without a token → 401', await go({ method: 'GET', path: '/v1/jobs/job_00000000000000000000' }), { route: '/v1/jobs/{id}', method: 'GET', status: 401, type: 'unauthorized' });
   expectProblem('tokens: POST /v1/analyses with a read token → 403', await go({ method: 'POST', path: '/v1/analyses', headers: { ...json, ...auth(tok.read) }, body: { levels: 2, runs: [{ atoms: 4, shots: 250, mean_energy: 4.97, energy_variance: 45.6 }], calibration: TRAP_A } }), { route: '/v1/analyses', method: 'POST', status: 403, type: 'forbidden' });
 
   await stopAndCheck(d, 'tokens');
@@ -891,6 +1110,7 @@ async function main() {
   const version = softwareVersion(bin);
   t.check('`swapspec --version` prints a version', version !== null);
   await phaseOpen(bin, version);
+  await phaseCalibrations(bin);
   await phaseTokens(bin);
   await phaseRefuseWide(bin);
 }
