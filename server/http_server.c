@@ -407,7 +407,8 @@ static void http_completed(void *cls, struct MHD_Connection *conn,
                   (int)req->status, "duration_ms", secs * 1e3, "bytes_in",
                   (json_int_t)req->len, "bytes_out", (json_int_t)req->bytes_out,
                   "completed", tc == MHD_REQUEST_TERMINATED_COMPLETED_OK);
-    char *text = line ? json_dumps(line, JSON_COMPACT) : NULL;
+    char *text =
+        line ? json_dumps(line, JSON_COMPACT | JSON_REAL_PRECISION(6)) : NULL;
     if (text != NULL) {
         flockfile(stderr);
         fprintf(stderr, "%s\n", text);
@@ -423,7 +424,8 @@ static void http_completed(void *cls, struct MHD_Connection *conn,
 static void http_log_event(const char *event, json_t *fields) {
     json_t *line = fields ? fields : json_object();
     json_object_set_new(line, "event", json_string(event));
-    char *text = json_dumps(line, JSON_COMPACT | JSON_SORT_KEYS);
+    char *text = json_dumps(line, JSON_COMPACT | JSON_SORT_KEYS |
+                                      JSON_REAL_PRECISION(6));
     if (text != NULL) {
         flockfile(stderr);
         fprintf(stderr, "%s\n", text);

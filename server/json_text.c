@@ -6,11 +6,13 @@
  * D = round(x·10^k), k = 16 − floor(log10 |x|).  For 0 <= k <= 27, 5^k fits
  * in 64 bits, so x·10^k = m·5^k·2^(k+e) is an exact 128-bit integer times a
  * power of two and D is rounded half-to-even exactly from the bits shifted
- * out — the same digits glibc's printf gives for "%.17g" (it converts
- * exactly; C17 7.21.6.1 asks for correct rounding when the precision is at
- * most DECIMAL_DIG).  tests/test_json_text.c holds the output against
- * snprintf on millions of values.  Other magnitudes, zeros and subnormals
- * go through snprintf.  Owns the writer's buffer until jt_finish.
+ * out.  Then the fewest digits p whose correctly rounded decimal still
+ * reads back as x are found exactly (jt_reads_back), so 16.8 prints as
+ * "16.8" and not "16.800000000000001", and every text reads back to the
+ * same double.  tests/test_json_text.c holds the output against glibc
+ * (snprintf "%.*e" for the digits, strtod for the reading back) on
+ * millions of values.  Other magnitudes, zeros and subnormals go through
+ * snprintf "%.17g".  Owns the writer's buffer until jt_finish.
  */
 #include "json_text.h"
 
@@ -42,38 +44,61 @@ static const uint64_t jt_pow10[18] = {1ull,
 
 /* 5^k for k = 0..27 (5^27 = 7 450 580 596 923 828 125 < 2^63). */
 static uint64_t jt_pow5(int k) {
-    uint64_t r = 1;
-    for (int i = 0; i < k; i++)
-        r *= 5u;
-    return r;
+    static const uint64_t table[28] = {1ull,
+                                       5ull,
+                                       25ull,
+                                       125ull,
+                                       625ull,
+                                       3125ull,
+                                       15625ull,
+                                       78125ull,
+                                       390625ull,
+                                       1953125ull,
+                                       9765625ull,
+                                       48828125ull,
+                                       244140625ull,
+                                       1220703125ull,
+                                       6103515625ull,
+                                       30517578125ull,
+                                       152587890625ull,
+                                       762939453125ull,
+                                       3814697265625ull,
+                                       19073486328125ull,
+                                       95367431640625ull,
+                                       476837158203125ull,
+                                       2384185791015625ull,
+                                       11920928955078125ull,
+                                       59604644775390625ull,
+                                       298023223876953125ull,
+                                       1490116119384765625ull,
+                                       7450580596923828125ull};
+    return table[k];
 }
 
-/* jansson's conventions on printf's text: ".0" when neither '.' nor 'e'
- * appears, no '+' and no leading zeros in the exponent (jansson's
- * jsonp_dtoa does both [from memory]). */
-static size_t jt_tidy(char *s, size_t len) {
-    char *e = strchr(s, 'e');
-    if (e == NULL) {
-        if (strchr(s, '.') == NULL) {
-            memcpy(s + len, ".0", 3);
-            len += 2;
-        }
-        return len;
-    }
-    char *from = e + 1, *to = e + 1;
-    if (*from == '-')
-        *to++ = *from++;
-    else if (*from == '+')
-        from++;
-    while (*from == '0' && from[1] != '\0')
-        from++;
-    memmove(to, from, strlen(from) + 1);
-    return strlen(s);
-}
+static size_t jt_place(int neg, uint64_t D, int E, char out[32]);
 
+/* Outside the fast range (zero, subnormals, |x| below about 1e-11 or from
+ * 1e17 on): the shortest "%.*e" that strtod reads back as x, placed by
+ * jt_place like the fast path's digits. */
 static size_t jt_fallback(double x, char out[32]) {
-    int n = snprintf(out, 32, "%.17g", x);
-    return jt_tidy(out, n > 0 ? (size_t)n : 0);
+    char text[40];
+    for (int p = 1; p <= 17; p++) {
+        snprintf(text, sizeof text, "%.*e", p - 1, x);
+        double back = strtod(text, NULL);
+        if (memcmp(&back, &x, sizeof x) == 0 || p == 17)
+            break;
+    }
+    uint64_t D = 0;
+    int digits = 0;
+    const char *c = text + (text[0] == '-');
+    for (; *c && *c != 'e'; c++)
+        if (*c >= '0' && *c <= '9') {
+            D = D * 10u + (uint64_t)(*c - '0');
+            digits++;
+        }
+    for (; digits < 17; digits++)
+        D *= 10u;
+    return jt_place(signbit(x) != 0, D, atoi(c + 1), out);
 }
 
 /* floor(x·10^k) and round-half-even(x·10^k) for x = m·2^e, 0 <= k <= 27.
@@ -99,6 +124,51 @@ static int jt_scaled(uint64_t m, int e, int k, uint64_t *floor_out,
     *round_out =
         (uint64_t)t + ((rem > half || (rem == half && (t & 1u))) ? 1u : 0u);
     return 1;
+}
+
+/* Rounds x·10^k (17 significant digits) to p digits, D_p·10^(17−p), and
+ * tells whether that decimal reads back as x: it must lie within half a
+ * unit in the last place of x (a quarter below a power of two, where the
+ * double below is closer), the ends included when m is even (strtod rounds
+ * halfway cases to even).  Everything is scaled to exact 128-bit
+ * integers.  *scaled receives D_p·10^(17−p). */
+static int jt_reads_back(uint64_t m, int e, int k, unsigned biased, int p,
+                         uint64_t *scaled) {
+    int kp = k - (17 - p), shift = k + e;
+    uint64_t t, dp;
+    if (shift < -68 || shift > 20)
+        return 0;
+    if (kp >= 0) {
+        if (!jt_scaled(m, e, kp, &t, &dp))
+            return 0;
+    } else { /* x·10^kp = m·5^k·2^shift / 10^(k − kp): divide exactly */
+        int j = k - kp;
+        if (j > 17)
+            return 0;
+        jt_u128 num = (jt_u128)m * jt_pow5(k), den = jt_pow10[j];
+        if (shift >= 0)
+            num <<= shift;
+        else
+            den <<= -shift;
+        jt_u128 q = num / den, rem = num % den;
+        if (q >> 64 != 0)
+            return 0;
+        dp = (uint64_t)q +
+             ((2 * rem > den || (2 * rem == den && (q & 1u))) ? 1u : 0u);
+    }
+    uint64_t v = dp * jt_pow10[17 - p]; /* <= 10^17 */
+    /* x·10^k = m·5^k·2^shift and half an ulp is 5^k·2^(shift−1): both
+     * sides times 2^(2 − min(shift, 0)) are integers */
+    int up = shift < 0 ? -shift : 0, keep = shift > 0 ? shift : 0;
+    jt_u128 a = (jt_u128)v << (up + 2);
+    jt_u128 b = ((jt_u128)m * jt_pow5(k)) << (keep + 2);
+    jt_u128 tol_hi = (jt_u128)jt_pow5(k) << (keep + 1);
+    jt_u128 tol_lo = (m == (1ull << 52) && biased > 1) ? tol_hi >> 1 : tol_hi;
+    int even = (m & 1u) == 0;
+    jt_u128 d = a >= b ? a - b : b - a;
+    jt_u128 tol = a >= b ? tol_hi : tol_lo;
+    *scaled = v;
+    return even ? d <= tol : d < tol;
 }
 
 /* Writes the 17 digits of D with decimal exponent E as "%.17g" would,
@@ -180,8 +250,36 @@ size_t json_text_number(double x, char out[32]) {
         if (r == jt_pow10[17]) { /* rounding carried into a new digit */
             r = jt_pow10[16];
             E++;
+            k--;
         }
-        return jt_place((int)(u >> 63), r, E, out);
+        /* the fewest digits that still read back as x (17 always do, and
+         * if p digits do then p + 1 do: a binary search) */
+        int lo = 1, hi = 17;
+        uint64_t best = r, dp16 = 0, dp15 = 0;
+        /* computed values mostly need 16 or 17 digits: look there first */
+        if (!jt_reads_back(m, e, k, biased, 16, &dp16))
+            lo = hi; /* 17 */
+        else if (!jt_reads_back(m, e, k, biased, 15, &dp15)) {
+            lo = hi = 16;
+            best = dp16;
+        } else {
+            hi = 15;
+            best = dp15;
+        }
+        while (lo < hi) {
+            int mid = (lo + hi) / 2;
+            uint64_t dp = 0;
+            if (jt_reads_back(m, e, k, biased, mid, &dp)) {
+                hi = mid;
+                best = dp;
+            } else
+                lo = mid + 1;
+        }
+        if (best == jt_pow10[17]) { /* p digits rounded up to 10^p */
+            best = jt_pow10[16];
+            E++;
+        }
+        return jt_place((int)(u >> 63), best, E, out);
     }
     return jt_fallback(x, out);
 }

@@ -4,13 +4,14 @@
  * some 400 numbers; building a jansson tree for it and printing that cost
  * more than the analysis itself).
  *
- * Numbers are written as jansson writes them with JSON_REAL_PRECISION(17):
- * the digits of printf's "%.17g" (so every double reads back exactly),
- * ".0" appended when the text would read as an integer, and an exponent
- * without '+' or leading zeros ("1e-5", "2e20").  json_text_number
- * produces them without printf for magnitudes from about 1e-11 to 1e17
- * (exact integer arithmetic on the binary value) and falls back to
- * snprintf elsewhere.  Non-finite numbers are written as null.
+ * Numbers are written with the fewest significant digits that read back
+ * as the same double (16.8, not 16.800000000000001), placed as printf's
+ * "%.17g" places digits, with ".0" appended when the text would read as
+ * an integer and an exponent without '+' or leading zeros ("1e-5",
+ * "2e20"), as jansson writes reals.  json_text_number works without printf
+ * for magnitudes from about 1e-11 to 1e17 (exact integer arithmetic on the
+ * binary value) and with snprintf/strtod elsewhere.  Non-finite numbers
+ * are written as null.
  *
  * Commas and colons are placed by the writer: call jt_key before each
  * member of an object, nothing before array items.  The first allocation
@@ -59,8 +60,9 @@ void jt_bool(jt_writer *w, int v);
 void jt_raw(jt_writer *w, const char *text, size_t len);
 /* An array of n numbers. */
 void jt_numbers(jt_writer *w, const double *x, size_t n);
-/* A jansson value, members in the object's own order: the same text as
- * json_dumps(v, JSON_COMPACT | JSON_REAL_PRECISION(17)), faster. */
+/* A jansson value, members in the object's own order: the document
+ * json_dumps(v, JSON_COMPACT | JSON_REAL_PRECISION(17)) writes, with the
+ * shortest exact numbers, faster. */
 void jt_json(jt_writer *w, const json_t *v);
 /* jt_json of doc as a new text (release with free), NULL when out of
  * memory, doc NULL, or nested deeper than JT_DEPTH_MAX. */
