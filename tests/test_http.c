@@ -346,6 +346,29 @@ Test(http, same_key_while_running_is_409, .init = hd_setup, .fini = hd_teardown,
     hh_free(&r);
 }
 
+/* 1 when a concrete path fits a route template: a "{...}" part matches
+ * one or more characters other than '/', the rest must be equal. */
+static int path_fits_template(const char *tmpl, const char *path) {
+    while (*tmpl) {
+        if (*tmpl == '{') {
+            tmpl = strchr(tmpl, '}');
+            if (tmpl == NULL)
+                return 0;
+            tmpl++;
+            size_t seg = strcspn(path, "/");
+            size_t lit = strcspn(tmpl, "/{"); /* literal tail, e.g. ".svg" */
+            if (seg <= lit || strncmp(path + seg - lit, tmpl, lit) != 0)
+                return 0;
+            path += seg;
+            tmpl += lit;
+            continue;
+        }
+        if (*tmpl++ != *path++)
+            return 0;
+    }
+    return *path == '\0';
+}
+
 Test(http, roles_per_route, .init = hd_setup, .fini = hd_teardown,
      .timeout = 120) {
     /* tokens: sha256 of "r-token", "w-token", "a-token" */
@@ -394,7 +417,55 @@ Test(http, roles_per_route, .init = hd_setup, .fini = hd_teardown,
          "{\"levels\":2,\"runs\":[{\"atoms\":4,\"shots\":100,\"mean_energy\":"
          "3.5,\"energy_variance\":3}]}",
          {401, 403, 201, 201}},
+        {"GET",
+         "/v1/analyses/an_00000000000000000000/revisions",
+         NULL,
+         {401, 404, 404, 404}},
+        {"PUT",
+         "/v1/calibrations/acl-test",
+         "{\"offset\":0,\"pair_shift\":0,\"exchange\":1,\"noise_sd\":0}",
+         {401, 403, 403, 201}},
+        {"GET", "/v1/calibrations/acl-test", NULL, {401, 200, 200, 200}},
+        {"GET", "/v1/calibrations", NULL, {401, 200, 200, 200}},
+        {"POST",
+         "/v1/reprocessing",
+         "{\"calibration\":\"acl-test\"}",
+         {401, 403, 403, 202}},
+        {"GET",
+         "/v1/jobs/job_00000000000000000000",
+         NULL,
+         {401, 404, 404, 404}},
+        {"GET",
+         "/v1/analyses/an_00000000000000000000/figures/spectrum.svg",
+         NULL,
+         {401, 404, 404, 404}},
+        {"GET", "/", NULL, {401, 200, 200, 200}},
+        {"GET",
+         "/analyses/an_00000000000000000000",
+         NULL,
+         {401, 404, 404, 404}},
+        {"GET", "/favicon.ico", NULL, {200, 200, 200, 200}},
     };
+    /* the table covers every route the daemon serves (`swapspec routes`) */
+    FILE *rp = popen(SWAPSPEC_BINARY " routes", "r");
+    cr_assert(rp != NULL);
+    json_error_t jerr;
+    json_t *routes = json_loadf(rp, 0, &jerr);
+    pclose(rp);
+    cr_assert(json_is_array(routes), "swapspec routes: %s", jerr.text);
+    size_t ri;
+    json_t *route;
+    json_array_foreach(routes, ri, route) {
+        const char *m = json_string_value(json_object_get(route, "method"));
+        const char *tmpl = json_string_value(json_object_get(route, "path"));
+        int covered = 0;
+        for (size_t i = 0; i < sizeof table / sizeof table[0] && !covered; i++)
+            covered = strcmp(table[i].method, m) == 0 &&
+                      path_fits_template(tmpl, table[i].path);
+        cr_expect(covered, "route %s %s is missing from the access table", m,
+                  tmpl);
+    }
+    json_decref(routes);
     const char *tok[4] = {NULL, "r-token", "w-token", "a-token"};
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++)
         for (int k = 0; k < 4; k++) {
@@ -581,5 +652,68 @@ Test(http, tls_with_a_certificate_made_here, .init = hd_setup,
         out[0] = '\0';
     pclose(p);
     cr_expect(strcmp(out, "200") != 0, "plain HTTP answered: %s", out);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+}
+
+/* Faults a lab network produces, each answered and survived (issue 7):
+ * headers over the per-connection memory → 431 from libmicrohttpd; the
+ * store's write lock held by another process past the busy timeout → 503
+ * store-busy with Retry-After (RFC 9110 §10.2.3), then 201 once the lock
+ * is gone; a client that sends half a request and stalls is disconnected
+ * by the connection timeout (1 s here), while other requests are served. */
+Test(http, faults_are_answered_and_survived, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 90) {
+    char conf[256];
+    snprintf(conf, sizeof conf, "%s/swapspec.conf", hd.dir);
+    hh_write(conf, "connection_timeout = 1\n");
+    const char *extra[] = {"--config", conf, NULL};
+    cr_assert(hh_start(&hd, extra) == 0);
+    hh_response r;
+    /* 1. a 100 KB header */
+    size_t big = 100000;
+    char *hdr = malloc(big + 16);
+    memcpy(hdr, "X-Big: ", 7);
+    memset(hdr + 7, 'a', big);
+    hdr[7 + big] = '\0';
+    hh_request(hd.port, "GET", "/healthz", NULL, NULL, hdr, NULL, &r);
+    cr_expect(r.status == 431, "oversized header: %d", r.status);
+    hh_free(&r);
+    free(hdr);
+    /* 2. the write lock held by another process (sqlite3's shell) */
+    char cmd[512];
+    snprintf(cmd, sizeof cmd, "sqlite3 %s/store.db", hd.dir);
+    FILE *lock = popen(cmd, "w");
+    cr_assert(lock != NULL);
+    fputs("BEGIN IMMEDIATE;\n", lock);
+    fflush(lock);
+    nanosleep(&(struct timespec){0, 300000000}, NULL);
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json", NULL,
+               ANALYSIS, &r);
+    expect_problem(&r, 503, "store-busy", NULL);
+    char retry[32];
+    cr_expect(hh_header(&r, "Retry-After", retry, sizeof retry) &&
+                  atoi(retry) >= 1,
+              "503 without Retry-After");
+    hh_free(&r);
+    fputs("ROLLBACK;\n.quit\n", lock);
+    pclose(lock);
+    hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json", NULL,
+               ANALYSIS, &r);
+    cr_expect(r.status == 201, "after the lock: %d", r.status);
+    hh_free(&r);
+    /* 3. half a request, then silence */
+    int fd = hh_connect(hd.port);
+    const char *half = "POST /v1/analyses HTTP/1.1\r\nHost: x\r\n";
+    cr_assert(send(fd, half, strlen(half), MSG_NOSIGNAL) > 0);
+    hh_request(hd.port, "GET", "/healthz", NULL, NULL, NULL, NULL, &r);
+    cr_expect(r.status == 200, "served beside a stalled client: %d", r.status);
+    hh_free(&r);
+    struct pollfd p = {fd, POLLIN, 0};
+    cr_expect(poll(&p, 1, 5000) == 1, "the stalled connection stayed open");
+    char buf[256];
+    ssize_t n = recv(fd, buf, sizeof buf, 0);
+    cr_expect(n <= 0 || strncmp(buf, "HTTP/1.1 408", 12) == 0,
+              "stalled client got %zd bytes", n);
+    close(fd);
     cr_expect(hh_stop(&hd, SIGTERM) == 0);
 }
