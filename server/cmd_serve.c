@@ -117,6 +117,7 @@ static ss_status serve_set(http_settings *s, const char *key, const char *v,
     SERVE_UINT("max_diagrams", s->budget.max_diagrams, 1, 8000000)
     SERVE_UINT("max_table_cells", s->budget.max_table_cells, 1, 64000000)
     SERVE_UINT("max_work", s->budget.max_work, 1, SS_BUDGET_WORK_DEFAULT)
+    SERVE_UINT("max_seconds", s->budget.max_seconds, 1, 3600)
 #undef SERVE_PATH
 #undef SERVE_UINT
     return ss_error_set(err, SS_EINVAL, field, "unknown setting '%s'", key);

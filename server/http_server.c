@@ -80,6 +80,7 @@ void http_settings_default(http_settings *s) {
     s->budget.max_diagrams = 1000000;
     s->budget.max_table_cells = 8000000;
     s->budget.max_work = 3000000000u; /* about 7 s of likelihood */
+    s->budget.max_seconds = 20;       /* and never more than 20 s */
 }
 
 store *http_app_store(http_app *app) { return app->db; }

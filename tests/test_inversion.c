@@ -650,7 +650,8 @@ Test(inversion, likelihood_many_unidentified_directions) {
     ss_sampler_free(smp);
 }
 
-/* The likelihood's work budget (ss_budget.max_work): 300 per-shot readings
+/* The likelihood's work budget (ss_budget.max_work) and deadline
+ * (max_seconds): 300 per-shot readings
  * at n = 12, d = 3 fit within the default, but with max_work = 10 000 units
  * (a few evaluations) method likelihood stops with SS_EBUDGET naming
  * max_work, and method auto falls back to the moments, deterministically
@@ -683,6 +684,20 @@ Test(inversion, likelihood_work_budget) {
         cr_assert_eq(b1->values[i], b2->values[i]);
     ss_analysis_free(b1);
     ss_analysis_free(b2);
+    /* the wall-clock deadline (max_seconds) ends the fit the same way, as
+     * SS_EDEADLINE (503 in the service); auto stays with the moments */
+    req.budget.max_work = 0;
+    req.budget.max_seconds = 1e-9;
+    req.method = SS_METHOD_LIKELIHOOD;
+    ss_error_clear(&err);
+    ss_status dst = ss_analysis_run(&req, &a, &err);
+    cr_assert_eq(dst, SS_EDEADLINE, "%s: %s", ss_status_name(dst),
+                 err.message);
+    cr_assert_str_eq(err.field, "max_seconds");
+    req.method = SS_METHOD_AUTO;
+    b1 = iv_analyse(&req, "auto, past the deadline");
+    cr_assert_eq(b1->method, SS_METHOD_MOMENTS);
+    ss_analysis_free(b1);
     gsl_rng_free(rng);
     ss_sampler_free(smp);
 }

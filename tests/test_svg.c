@@ -816,7 +816,7 @@ Test(svg, laws_group_levels_and_respect_the_budget) {
     svg_laws_free(laws, count);
 
     /* a budget of 6 diagrams (there are 7): only the candidates, said so */
-    ss_budget small = {6, 1000000, 0};
+    ss_budget small = {6, 1000000, 0, 0};
     cr_assert_eq(svg_laws_compute(&a, &small, 8, &laws, &count, &total, &err),
                  SS_OK);
     cr_assert_eq(laws[0].kind, SVG_LAW_CANDIDATES);

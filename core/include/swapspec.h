@@ -122,6 +122,11 @@ typedef struct {
      * Deterministic (no clock): the same request always gets the same
      * answer.  0 = the default. */
     uint64_t max_work;
+    /* Wall-clock limit (seconds, CLOCK_MONOTONIC) of each iterative phase
+     * — the likelihood fit, the bootstrap — for a machine slower or busier
+     * than max_work assumes: past it SS_EDEADLINE (field "max_seconds");
+     * method auto then stays with the moments.  0 = none. */
+    double max_seconds;
 } ss_budget;
 
 /* The default: 8 000 000 diagrams, 64 000 000 table cells (about 1.3 GiB

@@ -804,7 +804,8 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         }
         if (st == SS_OK && method == SS_METHOD_LIKELIHOOD) {
             st = ss__estimate_likelihood(a, req, rs, zc, err);
-            if (st == SS_EBUDGET && req->method == SS_METHOD_AUTO) {
+            if ((st == SS_EBUDGET || st == SS_EDEADLINE) &&
+                req->method == SS_METHOD_AUTO) {
                 ss_error_clear(err); /* too big for the likelihood: stay */
                 a->method = SS_METHOD_MOMENTS;
                 st = SS_OK;

@@ -12,7 +12,7 @@
 #include <string.h>
 
 ss_budget ss_budget_default(void) {
-    ss_budget b = {8000000u, 64000000u, SS_BUDGET_WORK_DEFAULT};
+    ss_budget b = {8000000u, 64000000u, SS_BUDGET_WORK_DEFAULT, 0.0};
     return b;
 }
 

@@ -49,6 +49,11 @@ static inline uint64_t ss__rank_of(const ss__rank_table *t, const long *a,
     return r;
 }
 
+/* The monotonic clock in seconds, and the deadline max_seconds from now
+ * (0 when the budget sets none) — budget.c. */
+double ss__now(void);
+double ss__deadline(const ss_budget *budget);
+
 /* qsort comparator: doubles in decreasing order (spectrum.c). */
 int ss__cmp_double_desc(const void *a, const void *b);
 

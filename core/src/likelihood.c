@@ -65,7 +65,9 @@ typedef struct {
     int failed;
     uint64_t work, work_max; /* see ss_budget.max_work */
     uint64_t work_per_eval;
-    int over; /* work_max passed: evaluations stop */
+    double deadline; /* ss__now() limit, 0 = none */
+    int over;        /* 1: work_max passed, 2: the deadline; evaluations
+                        stop */
 } ss__lik;
 
 static void ss__lik_release(ss__lik *L) {
@@ -85,7 +87,11 @@ static void ss__lik_release(ss__lik *L) {
 /* Probabilities per content level for every distinct atom number at p. */
 static int ss__lik_update(ss__lik *L, const double *p) {
     if (L->over || L->work_max - L->work < L->work_per_eval) {
-        L->over = 1; /* cheap from here on: the fit winds down */
+        L->over = L->over ? L->over : 1; /* cheap from here on */
+        return 0;
+    }
+    if (L->deadline > 0 && ss__now() > L->deadline) {
+        L->over = 2;
         return 0;
     }
     L->work += L->work_per_eval;
@@ -167,6 +173,7 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
     L->d = d;
     L->work_max =
         budget && budget->max_work ? budget->max_work : SS_BUDGET_WORK_DEFAULT;
+    L->deadline = ss__deadline(budget);
     L->cal = cal;
     L->sigma = cal->noise_sd;
     L->R = R;
@@ -668,6 +675,12 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
             ss__lik_profile(&L, mz, x, step, best_p, best, profile_z,
                             out->profile_lower, out->profile_upper);
 over:
+    if (st == SS_OK && L.over == 2)
+        st = ss_error_set(err, SS_EDEADLINE, "max_seconds",
+                          "the likelihood fit did not finish within %.3g s "
+                          "(the request deadline): use method moments, fewer "
+                          "levels or fewer atoms",
+                          budget->max_seconds);
     if (st == SS_OK && L.over)
         st = ss_error_set(err, SS_EBUDGET, "max_work",
                           "the likelihood fit needed more than %llu work "

@@ -312,7 +312,16 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
         st = ss_error_set(err, SS_ENOMEM, "", NULL);
     if (st != SS_OK)
         goto done;
+    double deadline = ss__deadline(budget);
     for (unsigned b = 0; b < replicates; b++) {
+        if (deadline > 0 && (b & 15u) == 0 && ss__now() > deadline) {
+            st = ss_error_set(err, SS_EDEADLINE, "max_seconds",
+                              "the bootstrap did not finish %u replicates "
+                              "within %.3g s (the request deadline); ask for "
+                              "fewer",
+                              replicates, budget->max_seconds);
+            goto done;
+        }
         for (size_t r = 0; r < R; r++)
             ss__replicate_run(rng, lv[r]->count, lv[r]->probability,
                               lv[r]->content, cnt, rs[r].shots, rs[r].tau2,
