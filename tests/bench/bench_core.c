@@ -11,6 +11,7 @@
 #include "swapspec.h"
 
 #include <gsl/gsl_rng.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -128,24 +129,34 @@ static void bench_moments(void) {
     ss_error err;
     ss_error_clear(&err);
     ss_analysis *a = NULL;
-    int reps = 500;
-    double t0 = bench_now();
-    for (int i = 0; i < reps; i++) {
-        if (ss_analysis_run(&req, &a, &err) != SS_OK) {
-            printf("moments: %s\n", err.message);
-            return;
+    /* five batches of 100: the fastest batch is the cost without other
+     * jobs on the machine (common practice on shared machines), the mean
+     * over all 500 what this run saw */
+    int reps = 100;
+    double per = HUGE_VAL, total = 0;
+    for (int batch = 0; batch < 5; batch++) {
+        double t0 = bench_now();
+        for (int i = 0; i < reps; i++) {
+            if (ss_analysis_run(&req, &a, &err) != SS_OK) {
+                printf("moments: %s\n", err.message);
+                return;
+            }
+            ss_analysis_free(a);
         }
-        ss_analysis_free(a);
+        double t = bench_now() - t0;
+        total += t;
+        per = fmin(per, t / reps);
     }
-    double per = (bench_now() - t0) / reps;
+    double mean = total / (5.0 * reps);
     req.bootstrap = 1000;
-    t0 = bench_now();
+    double t0 = bench_now();
     ss_analysis_run(&req, &a, &err);
     double boot = bench_now() - t0;
     ss_analysis_free(a);
-    printf("moments, 10 summary runs (d = 3): %.1f us per request; with 1000 "
-           "bootstrap replicates: %.1f ms\n",
-           per * 1e6, boot * 1e3);
+    printf("moments, 10 summary runs (d = 3): %.1f us per request (fastest "
+           "batch of 100; mean of 500: %.1f us); with 1000 bootstrap "
+           "replicates: %.1f ms\n",
+           per * 1e6, mean * 1e6, boot * 1e3);
 }
 
 static void bench_likelihood(unsigned n, unsigned d, size_t shots) {
