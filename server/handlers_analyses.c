@@ -330,16 +330,9 @@ ss_status handle_analyses_list(http_ctx *ctx, ss_error *err) {
     store_query q = {http_query(ctx, "label"), http_query(ctx, "since"),
                      http_query(ctx, "until"), 50, http_query(ctx, "cursor")};
     const char *limit = http_query(ctx, "limit");
-    if (limit != NULL) {
-        char *end = NULL;
-        unsigned long v = strtoul(limit, &end, 10);
-        if (limit[0] < '0' || limit[0] > '9' || *end != '\0' || v < 1 ||
-            v > STORE_LIST_LIMIT_MAX)
-            return ss_error_set(err, SS_EINVAL, "limit",
-                                "limit must be a whole number from 1 to %u",
-                                STORE_LIST_LIMIT_MAX);
-        q.limit = (unsigned)v;
-    }
+    if (limit != NULL && http_parse_count(limit, "limit", STORE_LIST_LIMIT_MAX,
+                                          &q.limit, err) != SS_OK)
+        return err->code;
     if (q.label != NULL && strlen(q.label) >= sizeof((store_record *)0)->label)
         return ss_error_set(err, SS_EINVAL, "label", "label is too long");
     store_conn *c = http_store_conn(ctx->app, err);

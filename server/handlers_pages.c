@@ -128,16 +128,9 @@ ss_status handle_page_index(http_ctx *ctx, ss_error *err) {
     const char *cursor = pages_param(ctx, "cursor");
     const char *limit = pages_param(ctx, "limit");
     unsigned lim = 50;
-    if (limit != NULL) {
-        char *end = NULL;
-        unsigned long v = strtoul(limit, &end, 10);
-        if (limit[0] < '0' || limit[0] > '9' || *end != '\0' || v < 1 ||
-            v > STORE_LIST_LIMIT_MAX)
-            return ss_error_set(err, SS_EINVAL, "limit",
-                                "limit must be a whole number from 1 to %u",
-                                STORE_LIST_LIMIT_MAX);
-        lim = (unsigned)v;
-    }
+    if (limit != NULL && http_parse_count(limit, "limit", STORE_LIST_LIMIT_MAX,
+                                          &lim, err) != SS_OK)
+        return err->code;
     if (label != NULL && strlen(label) >= sizeof((store_record *)0)->label)
         return ss_error_set(err, SS_EINVAL, "label", "label is too long");
     char since_buf[40], until_buf[40];

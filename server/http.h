@@ -109,6 +109,10 @@ void http_inflight_release(http_app *app, const char *key);
 const char *http_query(http_ctx *ctx, const char *name);
 /* A request header (NULL when absent). */
 const char *http_header(http_ctx *ctx, const char *name);
+/* A whole number from 1 to max written in decimal digits only: SS_EINVAL
+ * naming `name` otherwise (*out untouched). */
+ss_status http_parse_count(const char *text, const char *name, unsigned max,
+                           unsigned *out, ss_error *err);
 /* A query parameter that must be a whole number from 1 to 2^31 − 1:
  * *out = 0 when absent; SS_EINVAL naming the parameter otherwise. */
 ss_status http_query_count(http_ctx *ctx, const char *name, unsigned *out,

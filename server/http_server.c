@@ -29,6 +29,7 @@
 
 #include "http.h"
 #include "json_text.h"
+#include "log_line.h"
 #include "reprocess_runner.h"
 
 #define HTTP_INFLIGHT_MAX 1024
@@ -140,21 +141,24 @@ const char *http_header(http_ctx *ctx, const char *name) {
 }
 
 /* A whole-number query parameter from 1 to 2^31 − 1; 0 when absent. */
+ss_status http_parse_count(const char *text, const char *name, unsigned max,
+                           unsigned *out, ss_error *err) {
+    char *end = NULL;
+    unsigned long x = strtoul(text, &end, 10);
+    if (text[0] < '0' || text[0] > '9' || *end != '\0' || x < 1 || x > max ||
+        strlen(text) > 10)
+        return ss_error_set(err, SS_EINVAL, name,
+                            "%s must be a whole number from 1 to %u", name,
+                            max);
+    *out = (unsigned)x;
+    return SS_OK;
+}
+
 ss_status http_query_count(http_ctx *ctx, const char *name, unsigned *out,
                            ss_error *err) {
     const char *v = http_query(ctx, name);
     *out = 0;
-    if (v == NULL)
-        return SS_OK;
-    char *end = NULL;
-    unsigned long x = strtoul(v, &end, 10);
-    if (v[0] < '0' || v[0] > '9' || *end != '\0' || x < 1 || x > 2147483647ul ||
-        strlen(v) > 10)
-        return ss_error_set(err, SS_EINVAL, name,
-                            "%s must be a whole number from 1 to 2147483647",
-                            name);
-    *out = (unsigned)x;
-    return SS_OK;
+    return v == NULL ? SS_OK : http_parse_count(v, name, 2147483647u, out, err);
 }
 
 static double http_elapsed(const struct timespec *start) {
@@ -408,15 +412,7 @@ static void http_completed(void *cls, struct MHD_Connection *conn,
                   (int)req->status, "duration_ms", secs * 1e3, "bytes_in",
                   (json_int_t)req->len, "bytes_out", (json_int_t)req->bytes_out,
                   "completed", tc == MHD_REQUEST_TERMINATED_COMPLETED_OK);
-    char *text =
-        line ? json_dumps(line, JSON_COMPACT | JSON_REAL_PRECISION(6)) : NULL;
-    if (text != NULL) {
-        flockfile(stderr);
-        fprintf(stderr, "%s\n", text);
-        funlockfile(stderr);
-    }
-    free(text);
-    json_decref(line);
+    log_line(line);
     free(req->body);
     free(req);
     *con_cls = NULL;
@@ -425,16 +421,7 @@ static void http_completed(void *cls, struct MHD_Connection *conn,
 static void http_log_event(const char *event, json_t *fields) {
     json_t *line = fields ? fields : json_object();
     json_object_set_new(line, "event", json_string(event));
-    char *text = json_dumps(line, JSON_COMPACT | JSON_SORT_KEYS |
-                                      JSON_REAL_PRECISION(6));
-    if (text != NULL) {
-        flockfile(stderr);
-        fprintf(stderr, "%s\n", text);
-        fflush(stderr);
-        funlockfile(stderr);
-    }
-    free(text);
-    json_decref(line);
+    log_line(line);
 }
 
 static char *http_read_file(const char *path, ss_error *err,

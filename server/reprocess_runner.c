@@ -19,6 +19,7 @@
 
 #include "analysis_exec.h"
 #include "api_request.h"
+#include "log_line.h"
 
 #ifndef SWAPSPEC_VERSION
 #define SWAPSPEC_VERSION "unknown"
@@ -304,15 +305,7 @@ static void rp_log(const char *event, const store_job *job, const ss_error *e) {
         "failed", (json_int_t)job->failed);
     if (line != NULL && e != NULL && e->code != SS_OK)
         json_object_set_new(line, "error", json_string(e->message));
-    char *text = line ? json_dumps(line, JSON_COMPACT) : NULL;
-    if (text != NULL) {
-        flockfile(stderr);
-        fprintf(stderr, "%s\n", text);
-        fflush(stderr);
-        funlockfile(stderr);
-    }
-    free(text);
-    json_decref(line);
+    log_line(line);
 }
 
 static int rp_runner_should_stop(void *ctx) {
