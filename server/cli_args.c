@@ -332,6 +332,27 @@ static char *cli_json_text(const cli_option *opt, const char *key,
     return text;
 }
 
+void cli_error_as_json(ss_error *err) {
+    for (char *c = err->field; *c; c++)
+        if (*c == '-')
+            *c = '_';
+    /* "--name-with-dashes" → "name_with_dashes", in place */
+    char *out = err->message;
+    for (const char *in = err->message; *in;) {
+        if (in[0] == '-' && in[1] == '-' && in[2] >= 'a' && in[2] <= 'z') {
+            in += 2;
+            while ((*in >= 'a' && *in <= 'z') || (*in >= '0' && *in <= '9') ||
+                   *in == '-') {
+                *out++ = *in == '-' ? '_' : *in;
+                in++;
+            }
+            continue;
+        }
+        *out++ = *in++;
+    }
+    *out = '\0';
+}
+
 ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
                              cli_parsed *out, ss_error *err) {
     cli_parsed parsed = {cmd, NULL, 0, NULL, NULL, NULL};
@@ -376,15 +397,12 @@ ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
         parsed.values[k].owned = text;
         parsed.values[k].text = text;
         ss_status st = cli_parse_value(opt, text, &parsed.values[k], err);
-        if (st == SS_EMALFORMED) {
-            /* well-formed JSON with a value of the wrong kind (3.5 where a
-             * whole number belongs): a content error, worded for JSON */
+        if (st == SS_EMALFORMED) /* well-formed JSON with a value of the
+                                    wrong kind (3.5 where a whole number
+                                    belongs): a content error */
             err->code = st = SS_EINVAL;
-            if (strncmp(err->message, "--", 2) == 0)
-                memmove(err->message, err->message + 2,
-                        strlen(err->message + 2) + 1);
-        }
         if (st != SS_OK) {
+            cli_error_as_json(err);
             cli_args_free(&parsed);
             return st;
         }
@@ -393,8 +411,10 @@ ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
         const cli_option *opt = &cmd->options[k];
         if (opt->required && !parsed.values[k].present) {
             cli_args_free(&parsed);
-            return ss_error_set(err, SS_EINVAL, opt->name,
-                                "missing required field '%s'", opt->name);
+            ss_error_set(err, SS_EINVAL, opt->name,
+                         "missing required field '--%s'", opt->name);
+            cli_error_as_json(err);
+            return err->code;
         }
     }
     *out = parsed;

@@ -583,8 +583,10 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
         }
     }
     if (!(best < SS__NLL_ZERO) && !L.over) {
-        st = ss_error_set(err, SS_EINTERNAL, "runs",
-                          "the likelihood is zero everywhere tried");
+        st = ss_error_set(err, SS_EINVAL, "runs",
+                          "no spectrum tried gives these readings a non-zero "
+                          "likelihood: the runs contradict one another or "
+                          "the calibration (try method moments to see where)");
         goto done;
     }
     if (L.over)

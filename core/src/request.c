@@ -126,6 +126,59 @@ static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
 }
 #undef SS__RUN_FAIL
 
+/* Readings beyond any physical value by more than SS__SCALE_FACTOR (the
+ * content sum of n atoms lies in [−C(n,2), C(n,2)], its variance below
+ * C(n,2)²) are refused: they come from wrong units or a wrong calibration,
+ * and the numbers they would feed the fits (1e300) overflow there. */
+#define SS__SCALE_FACTOR 1e6
+
+static ss_status ss__validate_scale(const ss_analysis_request *req, size_t i,
+                                    ss_error *err) {
+    const ss_run *r = &req->runs[i];
+    const ss_calibration *cal = &req->calibration;
+    double n = r->atoms, pairs = fmax(0.5 * n * (n - 1.0), 1.0);
+    double limit = SS__SCALE_FACTOR * pairs;
+    char field[64];
+    if (r->energies != NULL) {
+        for (size_t k = 0; k < r->energy_count; k++) {
+            double c = ss_calibration_content(cal, r->atoms, r->energies[k]);
+            if (!(fabs(c) <= limit)) {
+                snprintf(field, sizeof field, "runs[%zu].energies[%zu]", i, k);
+                return ss_error_set(
+                    err, SS_EINVAL, field,
+                    "the reading %.6g is content %.3g under the calibration, "
+                    "beyond any physical value (|c| <= C(n,2) = %.0f) by "
+                    "more than a factor %.0e: check the units and the "
+                    "calibration",
+                    r->energies[k], c, pairs, SS__SCALE_FACTOR);
+            }
+        }
+        return SS_OK;
+    }
+    double c = ss_calibration_content(cal, r->atoms, r->mean_energy);
+    double v = r->energy_variance / (cal->exchange * cal->exchange);
+    if (!(fabs(c) <= limit)) {
+        snprintf(field, sizeof field, "runs[%zu].mean_energy", i);
+        return ss_error_set(err, SS_EINVAL, field,
+                            "the mean energy %.6g is content %.3g under the "
+                            "calibration, beyond any physical value (|c| <= "
+                            "C(n,2) = %.0f) by more than a factor %.0e: check "
+                            "the units and the calibration",
+                            r->mean_energy, c, pairs, SS__SCALE_FACTOR);
+    }
+    if (!(v <= limit * limit)) {
+        snprintf(field, sizeof field, "runs[%zu].energy_variance", i);
+        return ss_error_set(err, SS_EINVAL, field,
+                            "the energy variance %.6g is %.3g in content "
+                            "units², beyond any physical value (<= C(n,2)² = "
+                            "%.0f) by more than a factor %.0e²: check the "
+                            "units and the calibration",
+                            r->energy_variance, v, pairs * pairs,
+                            SS__SCALE_FACTOR);
+    }
+    return SS_OK;
+}
+
 ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err) {
     if (req == NULL)
         return ss_error_set(err, SS_EINVAL, "", "no request");
@@ -159,6 +212,8 @@ ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err) {
     double total = 0;
     for (size_t i = 0; i < req->run_count; i++) {
         st = ss__validate_run(req, i, err);
+        if (st == SS_OK)
+            st = ss__validate_scale(req, i, err);
         if (st != SS_OK)
             return st;
         const ss_run *r = &req->runs[i];
