@@ -68,7 +68,9 @@ static int req_count(const json_t *obj, const char *key, const char *field,
     double x = 0;
     if (!req_number(obj, key, field, required, &x, err))
         return 0;
-    if (!(x >= 0) || x != (double)(unsigned long long)x || x > limit) {
+    /* the range first: casting a double beyond the integer type is
+     * undefined behaviour (C17 6.3.1.4) */
+    if (!(x >= 0) || x > limit || x != (double)(unsigned long long)x) {
         ss_error_set(err, SS_EINVAL, field,
                      "must be a whole number from 0 to %.0f, got %.17g", limit,
                      x);

@@ -332,20 +332,28 @@ static char *cli_json_text(const cli_option *opt, const char *key,
     return text;
 }
 
-void cli_error_as_json(ss_error *err) {
-    for (char *c = err->field; *c; c++)
-        if (*c == '-')
-            *c = '_';
-    /* "--name-with-dashes" → "name_with_dashes", in place */
+void cli_error_as_json(const cli_command *cmd, ss_error *err) {
+    size_t k = 0;
+    /* the field: only a leading option name ("energy-sd", not the
+     * client's own "calibration.gain-db") */
+    size_t head = strcspn(err->field, ".[");
+    if (head > 0 && cli_find_option(cmd, err->field, head, &k) != NULL)
+        for (size_t i = 0; i < head; i++)
+            if (err->field[i] == '-')
+                err->field[i] = '_';
+    /* the message: "--option-name" → "option_name", for option names only */
     char *out = err->message;
     for (const char *in = err->message; *in;) {
-        if (in[0] == '-' && in[1] == '-' && in[2] >= 'a' && in[2] <= 'z') {
-            in += 2;
-            while ((*in >= 'a' && *in <= 'z') || (*in >= '0' && *in <= '9') ||
-                   *in == '-') {
-                *out++ = *in == '-' ? '_' : *in;
-                in++;
-            }
+        size_t len = 0;
+        if (in[0] == '-' && in[1] == '-')
+            while ((in[2 + len] >= 'a' && in[2 + len] <= 'z') ||
+                   (in[2 + len] >= '0' && in[2 + len] <= '9') ||
+                   in[2 + len] == '-')
+                len++;
+        if (len > 0 && cli_find_option(cmd, in + 2, len, &k) != NULL) {
+            for (size_t i = 0; i < len; i++)
+                *out++ = in[2 + i] == '-' ? '_' : in[2 + i];
+            in += 2 + len;
             continue;
         }
         *out++ = *in++;
@@ -402,7 +410,7 @@ ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
                                     belongs): a content error */
             err->code = st = SS_EINVAL;
         if (st != SS_OK) {
-            cli_error_as_json(err);
+            cli_error_as_json(cmd, err);
             cli_args_free(&parsed);
             return st;
         }
@@ -413,7 +421,7 @@ ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
             cli_args_free(&parsed);
             ss_error_set(err, SS_EINVAL, opt->name,
                          "missing required field '--%s'", opt->name);
-            cli_error_as_json(err);
+            cli_error_as_json(cmd, err);
             return err->code;
         }
     }

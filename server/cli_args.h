@@ -120,10 +120,11 @@ ss_status cli_args_parse(const cli_command *cmd, int argc, char **argv,
  * the option "calibration" an inline calibration object.  Values go through
  * the same checks as on the command line; unknown keys and wrong types are
  * SS_EINVAL naming the key.  Release with cli_args_free. */
-/* Rewords an error of a command run from a JSON body: option names become
- * JSON keys, in the field ("energy-sd" → "energy_sd") and in the message
- * ("--energy-sd" → "energy_sd"). */
-void cli_error_as_json(ss_error *err);
+/* Rewords an error of cmd run from a JSON body: its option names become
+ * JSON keys, in the field ("energy-sd" → "energy_sd", a leading option
+ * name only) and in the message ("--energy-sd" → "energy_sd"); the
+ * client's own keys are left as they were written. */
+void cli_error_as_json(const cli_command *cmd, ss_error *err);
 
 ss_status cli_args_from_json(const cli_command *cmd, const json_t *body,
                              cli_parsed *out, ss_error *err);

@@ -20,7 +20,7 @@ static ss_status compute_with(const cli_command *cmd, http_ctx *ctx,
     st = cmd->run(&args, &ctx->doc, err);
     cli_args_free(&args);
     if (st != SS_OK)
-        cli_error_as_json(err); /* name the body's keys, not the options */
+        cli_error_as_json(cmd, err); /* the body's keys, not the options */
     return st;
 }
 

@@ -40,7 +40,7 @@ void http_field_pointer(const char *field, char *out, size_t cap) {
 
 json_t *http_problem_doc(const ss_error *err, unsigned *status) {
     ss_status code = err->code == SS_OK ? SS_EINTERNAL : err->code;
-    char type[96], pointer[128];
+    char type[96], pointer[192]; /* a 95-byte field, each byte escaped */
     snprintf(type, sizeof type, "urn:swapspec:problem:%s",
              ss_status_name(code));
     *status = (unsigned)ss_status_http(code);

@@ -8,7 +8,7 @@
 #     (-DSWAPSPEC_SANITIZE=ON -DSWAPSPEC_WERROR=ON) and runs ctest there;
 #  4. checks the formatting of core/, server/ and tests/ with clang-format;
 #  5. fuzzes: tests/fuzz/run.sh builds the libFuzzer targets with clang in
-#     build-fuzz/ and runs each for FUZZ_SECONDS (default 75), two at a
+#     build-fuzz/ and runs each for FUZZ_SECONDS (default 60), two at a
 #     time, printing executions, exec/s and coverage per target;
 #  6. prints "N passed, N failed", counting test programs over both trees
 #     (a tree that does not build counts all its programs as failed).
@@ -113,10 +113,11 @@ else
 fi
 
 fuzz_ok=1
-FUZZ_SECONDS=${FUZZ_SECONDS:-75}
+FUZZ_SECONDS=${FUZZ_SECONDS:-60}
 if ((FUZZ_SECONDS > 0)); then
     echo "run-all: === fuzz (${FUZZ_SECONDS} s per target) ==="
-    if ! FUZZ_PARALLEL=2 JOBS="$JOBS" bash tests/fuzz/run.sh "$FUZZ_SECONDS"; then
+    if ! FUZZ_PARALLEL=2 JOBS="$JOBS" bash tests/fuzz/run.sh \
+            "$FUZZ_SECONDS"; then
         echo "run-all: fuzzing FAILED (see the fuzz: lines above)"
         fuzz_ok=0
     fi

@@ -691,8 +691,7 @@ Test(inversion, likelihood_work_budget) {
     req.method = SS_METHOD_LIKELIHOOD;
     ss_error_clear(&err);
     ss_status dst = ss_analysis_run(&req, &a, &err);
-    cr_assert_eq(dst, SS_EDEADLINE, "%s: %s", ss_status_name(dst),
-                 err.message);
+    cr_assert_eq(dst, SS_EDEADLINE, "%s: %s", ss_status_name(dst), err.message);
     cr_assert_str_eq(err.field, "max_seconds");
     req.method = SS_METHOD_AUTO;
     b1 = iv_analyse(&req, "auto, past the deadline");

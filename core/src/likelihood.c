@@ -564,7 +564,8 @@ ss_status ss__likelihood_fit(unsigned d, const ss_calibration *cal,
             for (size_t k = 0; k < m; k++)
                 gsl_vector_set(x, k, z[k]);
             gsl_vector_set_all(step, pass == 0 ? 0.5 : 0.05);
-            gsl_multimin_fminimizer_set(mz, &f, x, step);
+            if (gsl_multimin_fminimizer_set(mz, &f, x, step) != GSL_SUCCESS)
+                continue; /* the objective is not finite there */
             for (int it = 0; it < 3000; it++, iters++) {
                 if (gsl_multimin_fminimizer_iterate(mz) != GSL_SUCCESS)
                     break;

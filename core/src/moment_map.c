@@ -467,7 +467,10 @@ double ss__nearest_physical(unsigned d, const double theta[2],
                            start < d ? (k == start ? 6.0 : 0.0)
                                      : (start == d ? -3.0 : 0.0));
         gsl_vector_set_all(step, 1.0);
-        gsl_multimin_fminimizer_set(m, &f, x, step);
+        /* a start where the objective is not finite leaves the minimiser
+         * half set up: skip it */
+        if (gsl_multimin_fminimizer_set(m, &f, x, step) != GSL_SUCCESS)
+            continue;
         for (int it = 0; it < 1500; it++) {
             if (gsl_multimin_fminimizer_iterate(m) != GSL_SUCCESS)
                 break;
@@ -485,6 +488,9 @@ double ss__nearest_physical(unsigned d, const double theta[2],
         }
     }
 done:
+    if (!isfinite(best)) /* no start worked: a defined point, no distance */
+        for (unsigned i = 0; i < d; i++)
+            p_star[i] = 1.0 / d;
     gsl_multimin_fminimizer_free(m);
     gsl_vector_free(x);
     gsl_vector_free(step);

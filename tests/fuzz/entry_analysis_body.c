@@ -128,6 +128,11 @@ static int fz_execute(const json_t *root, const api_request *r,
     if (st != SS_EINVAL && st != SS_EBUDGET && st != SS_ERANGE &&
         st != SS_ENOMEM && !(st == SS_EINTERNAL && fuzz_lenient("internal")))
         return fuzz_fail(v, "ss_analysis_run returned %s", ss_status_name(st));
+    if (!fuzz_field_among(err.field, fuzz_request_fields))
+        return fuzz_fail(v,
+                         "the error names '%s', not a member of the "
+                         "request: %s",
+                         err.field, err.message);
     return fuzz_check_field(root, &err, "ss_analysis_run", v);
 }
 

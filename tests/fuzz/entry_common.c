@@ -34,10 +34,15 @@ const fuzz_target fuzz_targets[] = {
 };
 const size_t fuzz_target_count = sizeof fuzz_targets / sizeof fuzz_targets[0];
 
+const char *const fuzz_request_fields[] = {
+    "levels",    "calibration", "measured_at", "runs",  "method", "confidence",
+    "bootstrap", "seed",        "window",      "label", NULL};
+
 ss_budget fuzz_budget(void) {
-    /* a few thousand diagrams and a Schur table of a few MB: every input
-     * runs in milliseconds even under the sanitizers */
-    ss_budget b = {4000u, 200000u, 0};
+    /* a few thousand diagrams, a Schur table of a few MB and 1e7 units of
+     * iterative work (swapspec.h: a unit is about 2.3 ns, so some 25 ms):
+     * every input runs in milliseconds even under the sanitizers */
+    ss_budget b = {4000u, 200000u, 10000000u, 0};
     return b;
 }
 
@@ -161,8 +166,10 @@ static int fuzz_check_runs(const ss_analysis_request *req, const ss_analysis *a,
                                  "run %zu candidate %zu: content %lld does "
                                  "not match its rows",
                                  r, k, (long long)c->content);
+            /* swapspec.h: a distribution table sums to 1 ± 1e-12, so
+             * one entry may pass 1 by as much */
             if (!isnan(c->probability) &&
-                !(c->probability >= 0.0 && c->probability <= 1.0))
+                !(c->probability >= 0.0 && c->probability <= 1.0 + 1e-12))
                 return fuzz_fail(v, "run %zu candidate %zu: probability %.17g",
                                  r, k, c->probability);
             if (c->degenerate_group > rr->degenerate_group_count)
@@ -171,6 +178,42 @@ static int fuzz_check_runs(const ss_analysis_request *req, const ss_analysis *a,
                                  rr->degenerate_group_count);
         }
     }
+    return 0;
+}
+
+/* The value of the flag's number called name, or NaN. */
+static double fuzz_flag_number(const ss_flag *f, const char *name) {
+    for (unsigned i = 0; i < f->number_count && i < SS_FLAG_NUMBERS_MAX; i++)
+        if (strcmp(f->numbers[i].name, name) == 0)
+            return f->numbers[i].value;
+    return (double)NAN;
+}
+
+/* outside-physical-region: the Mahalanobis distance d_M of (P2, P3) to the
+ * region bounds each coordinate's standardised gap (Cauchy–Schwarz:
+ * |e1·(θ − x)| <= sqrt(Σ11)·d_M), and every physical P2 lies in [1/d, 1]
+ * (domain notes §2), so distance_se >= dist(P2, [1/d, 1]) / P2's standard
+ * error, whatever minimiser found the nearest point (its value can only be
+ * above the true minimum).  Relative slack 1e-6 for rounding. */
+static int fuzz_check_outside(const ss_analysis *a, const ss_flag *f,
+                              fuzz_verdict *v) {
+    double dist = fuzz_flag_number(f, "distance_se");
+    double p2 = fuzz_flag_number(f, "p2"),
+           se = fuzz_flag_number(f, "p2_stderr");
+    if (!isfinite(dist) || dist < 0)
+        return fuzz_fail(v, "outside-physical-region with distance_se %.17g",
+                         dist);
+    if (!isfinite(p2) || !isfinite(se) || !(se > 0))
+        return 0;
+    double lo = 1.0 / a->levels;
+    double gap = p2 < lo ? lo - p2 : p2 > 1.0 ? p2 - 1.0 : 0.0;
+    double bound = gap / se;
+    if (dist < bound * (1.0 - 1e-6) - 1e-9)
+        return fuzz_fail(v,
+                         "outside-physical-region: P2 = %.17g (se %.3g) is "
+                         "%.6g standard errors outside [1/%u, 1], but "
+                         "distance_se is %.17g",
+                         p2, se, bound, a->levels, dist);
     return 0;
 }
 
@@ -194,6 +237,8 @@ static int fuzz_check_flags(const ss_analysis *a, fuzz_verdict *v) {
                 f->numbers[i].name[0] == '\0')
                 return fuzz_fail(v, "flag %zu (%s): number %u has no name", k,
                                  ss_flag_name(f->code), i);
+        if (f->code == SS_FLAG_OUTSIDE_PHYSICAL && fuzz_check_outside(a, f, v))
+            return 1;
     }
     return 0;
 }
@@ -249,7 +294,7 @@ int fuzz_check_analysis(const ss_analysis_request *req, const ss_analysis *a,
  * pointer (http_field_pointer, the one the problem document shows) but the
  * last exists, and the last too when must_exist. */
 int fuzz_field_resolves(const json_t *doc, const char *field, int must_exist) {
-    char ptr[128];
+    char ptr[512]; /* roomy: every '~' and '/' doubles */
     http_field_pointer(field, ptr, sizeof ptr);
     const json_t *node = doc;
     const char *s = ptr;
@@ -316,5 +361,19 @@ int fuzz_check_field(const json_t *doc, const ss_error *err, const char *where,
                          "%s: the error names '%s', not in the document "
                          "(%s)",
                          where, err->field, err->message);
+    return 0;
+}
+
+int fuzz_field_among(const char *field, const char *const *names) {
+    static const char *const budget[] = {"max_diagrams", "max_table_cells",
+                                         "max_work", "max_seconds", NULL};
+    size_t n = strcspn(field, ".[");
+    if (field[0] == '\0' || fuzz_lenient("names"))
+        return 1;
+    for (const char *const *list = names; list != NULL;
+         list = list == budget ? NULL : budget)
+        for (size_t i = 0; list[i] != NULL; i++)
+            if (strlen(list[i]) == n && strncmp(field, list[i], n) == 0)
+                return 1;
     return 0;
 }

@@ -5,7 +5,8 @@
  * is the body, parsed as the daemon parses it (json_loadb with
  * JSON_REJECT_DUPLICATES), read with cli_args_from_json against the
  * command's option table as handlers_compute.c does, and then run with the
- * fuzz budget in place of the service's.
+ * fuzz budget in place of the service's (a failure's names rewritten for
+ * JSON with cli_error_as_json, as the handler does).
  *
  * Checks: a refused body has a status of the table (malformed only for a
  * body that is not an object), names a field that resolves in the body,
@@ -33,6 +34,31 @@ static void fz_key_of(const char *name, char *key, size_t cap) {
     for (; name[n] && n + 1 < cap; n++)
         key[n] = name[n] == '-' ? '_' : name[n];
     key[n] = '\0';
+}
+
+/* The JSON keys of cmd's options, NULL-terminated (static storage). */
+static const char *const *fz_keys_of(const cli_command *cmd) {
+    static char keys[16][64];
+    static const char *list[17];
+    size_t n = 0;
+    for (; n < cmd->option_count && n < 16; n++) {
+        fz_key_of(cmd->options[n].name, keys[n], sizeof keys[n]);
+        list[n] = keys[n];
+    }
+    list[n] = NULL;
+    return list;
+}
+
+/* An error names a key of the body (as sent: "energy_sd", not the
+ * option's "energy-sd"), a budget limit, or nothing. */
+static int fz_check_named(const cli_command *cmd, const ss_error *err,
+                          const char *where, fuzz_verdict *v) {
+    if (!fuzz_field_among(err->field, fz_keys_of(cmd)))
+        return fuzz_fail(v,
+                         "%s: the error names '%s', not a key of the %s "
+                         "body: %s",
+                         where, err->field, cmd->name, err->message);
+    return 0;
 }
 
 static int fz_check_value(const cli_option *opt, const cli_value *val,
@@ -128,12 +154,15 @@ static int fz_run(const cli_command *cmd, const json_t *body, cli_parsed *p,
     }
     if (doc != NULL)
         return fuzz_fail(v, "%s failed but returned a document", cmd->name);
+    cli_error_as_json(cmd, &err); /* as handlers_compute.c does */
     if (fuzz_check_failure(st, &err, cmd->name, v))
         return 1;
     if (st != SS_EINVAL && st != SS_EBUDGET && st != SS_ERANGE &&
         st != SS_ENOMEM && !(st == SS_EINTERNAL && fuzz_lenient("internal")))
         return fuzz_fail(v, "%s returned %s: %s", cmd->name, ss_status_name(st),
                          err.message);
+    if (fz_check_named(cmd, &err, cmd->name, v))
+        return 1;
     return fuzz_check_field(body, &err, cmd->name, v);
 }
 
@@ -165,6 +194,9 @@ int fuzz_compute_body_one(const uint8_t *data, size_t size, fuzz_verdict *v) {
                !(st == SS_EMALFORMED && !json_is_object(body))) {
         bad = fuzz_fail(v, "cli_args_from_json returned %s: %s",
                         ss_status_name(st), err.message);
+    } else if (strstr(err.message, "unknown field") == NULL &&
+               fz_check_named(cmd, &err, "cli_args_from_json", v)) {
+        bad = 1;
     } else {
         bad = fuzz_check_field(body, &err, "cli_args_from_json", v);
     }

@@ -180,6 +180,11 @@ int fuzz_inversion_one(const uint8_t *data, size_t size, fuzz_verdict *v) {
                          ss_status_name(st));
     if (fuzz_check_failure(st, &err, "ss_analysis_run", v))
         return 1;
+    if (!fuzz_field_among(err.field, fuzz_request_fields))
+        return fuzz_fail(v,
+                         "the error names '%s', not a member of the "
+                         "request: %s",
+                         err.field, err.message);
     if (st != SS_EINVAL && st != SS_EBUDGET && st != SS_ERANGE &&
         st != SS_ENOMEM && !(st == SS_EINTERNAL && fuzz_lenient("internal")))
         return fuzz_fail(v, "ss_analysis_run returned %s: %s",

@@ -26,8 +26,9 @@ typedef struct {
 } fuzz_verdict;
 
 /* POST /v1/analyses bodies: JSON text → api_request_from_json (the daemon's
- * parse flags), compared with api_request_parse_text (the CLI's), then a
- * small-budget run through analysis_execute when the request is inline. */
+ * parse flags), compared with api_request_parse_text (the CLI's), then an
+ * inline request runs through ss_analysis_run under the fuzz budget, its
+ * calibration resolved as analysis_execute resolves it. */
 int fuzz_analysis_body_one(const uint8_t *data, size_t size, fuzz_verdict *v);
 
 /* POST /v1/predictions, /v1/candidates, /v1/simulations bodies: the first
@@ -60,8 +61,8 @@ ss_budget fuzz_budget(void);
  * FUZZ_LENIENT: a check that a known, reported finding fails, relaxed so
  * that fuzzing can look past it until the fix lands.  Tags: order (a
  * spectrum out of order by at most 4 ulp), internal (an internal error on
- * client input), region (the intervals of a confidence region).  Never set
- * in CI. */
+ * client input), region (the intervals of a confidence region), names (an
+ * error naming something the client did not send).  Never set in CI. */
 int fuzz_lenient(const char *tag);
 
 /* Records a failed invariant (printf-style) in v; returns 1. */
@@ -70,8 +71,8 @@ int fuzz_fail(fuzz_verdict *v, const char *fmt, ...)
 
 /* Checks an analysis result against the request it answered: spectrum
  * finite, in [0,1], descending, summing to 1 within 1e-9, lower <= value <=
- * upper; candidates valid diagrams; flags well formed; the rendered JSON
- * text parses.  0 or 1 with v set. */
+ * upper within [0,1]; candidates valid diagrams; flags well formed; the
+ * rendered JSON text parses.  0 or 1 with v set. */
 int fuzz_check_analysis(const ss_analysis_request *req, const ss_analysis *a,
                         fuzz_verdict *v);
 
@@ -91,6 +92,14 @@ int fuzz_field_resolves(const json_t *doc, const char *field, int must_exist);
  * (empty, holding '.', '[' or ']', or over 60 bytes).  0 or 1 with v set. */
 int fuzz_check_field(const json_t *doc, const ss_error *err, const char *where,
                      fuzz_verdict *v);
+
+/* The members of an analysis request (api_request.h), NULL-terminated. */
+extern const char *const fuzz_request_fields[];
+
+/* 1 when the first segment of field (up to '.' or '[') is one of names
+ * (NULL-terminated) or a field of ss_budget, or field is "": an error
+ * names something the client sent or a limit, not an internal quantity. */
+int fuzz_field_among(const char *field, const char *const *names);
 
 /* Removes the scratch store of the query target, if it was created. */
 void fuzz_entry_cleanup(void);

@@ -8,10 +8,11 @@
 # directory (FUZZ_BUILD_DIR, default build-fuzz/): the code under test is
 # built for coverage and with AddressSanitizer + UndefinedBehaviorSanitizer
 # (-fsanitize=fuzzer,address,undefined -fno-sanitize-recover=undefined).
-# Each target starts from its checked-in seeds (tests/fuzz/corpus/<target>/)
-# and from the inputs earlier runs in the same build directory found
-# (FUZZ_BUILD_DIR/corpus/<target>/, where new inputs are written), with the
-# dictionary tests/fuzz/dict/<target>.dict when there is one.
+# Each target starts from its checked-in seeds (tests/fuzz/corpus/<target>/),
+# the saved regressions (tests/fuzz/regressions/<target>/) and the inputs
+# earlier runs in the same build directory found (FUZZ_BUILD_DIR/corpus/
+# <target>/, where new inputs are written), with the dictionary
+# tests/fuzz/dict/<target>.dict.
 #
 # Per target it prints executions, executions per second, and libFuzzer's
 # final coverage (cov: edges, ft: features) and corpus size.  It fails when
@@ -69,9 +70,15 @@ run_target() {
     if [[ -f tests/fuzz/dict/$t.dict ]]; then
         args+=(-dict="tests/fuzz/dict/$t.dict")
     fi
+    # new inputs go to $work; the seeds and the saved regressions are read
+    # (and run first, so a regression fails here with UBSan's full checks)
+    local dirs=("$work" "tests/fuzz/corpus/$t")
+    if [[ -d tests/fuzz/regressions/$t ]]; then
+        dirs+=("tests/fuzz/regressions/$t")
+    fi
     local rc=0
-    "$BUILD/fuzz_$t" "${args[@]}" "$work" "tests/fuzz/corpus/$t" \
-        >"$BUILD/logs/$t.log" 2>&1 || rc=$?
+    "$BUILD/fuzz_$t" "${args[@]}" "${dirs[@]}" >"$BUILD/logs/$t.log" 2>&1 ||
+        rc=$?
     echo "$rc" >"$BUILD/logs/$t.rc"
 }
 
@@ -125,7 +132,17 @@ for t in "${TARGETS[@]}"; do
         if [[ -n $input ]]; then
             echo "fuzz:     input: $input"
             echo "fuzz:     replay: $BUILD/fuzz_$t $input"
-            echo "fuzz:     keep it: cp $input tests/fuzz/regressions/$t/"
+            saved=""
+            for f in tests/fuzz/regressions/"$t"/*; do
+                if [[ -f $f ]] && cmp -s "$f" "$input"; then
+                    saved=$f
+                fi
+            done
+            if [[ -n $saved ]]; then
+                echo "fuzz:     a saved regression still fails: $saved"
+            else
+                echo "fuzz:     keep it: cp $input tests/fuzz/regressions/$t/"
+            fi
         fi
         echo "fuzz:     log: $log"
     fi
