@@ -212,7 +212,7 @@ static inline void hh_request(int port, const char *method, const char *path,
                               const char *extra, const char *body,
                               hh_response *out) {
     size_t blen = body ? strlen(body) : 0;
-    size_t cap = blen + 4096;
+    size_t cap = blen + (extra ? strlen(extra) : 0) + 4096;
     char *req = malloc(cap);
     int n = snprintf(req, cap,
                      "%s %s HTTP/1.1\r\nHost: 127.0.0.1\r\nConnection: "

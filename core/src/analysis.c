@@ -822,6 +822,13 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
                 break;
             }
         ss__set_intervals(a, zc);
+        /* every interval holds its point: the likelihood's point with the
+         * moments' region (rank-deficient fits), or a projected point next
+         * to a sampled region, can fall just outside it */
+        for (unsigned i = 0; i < a->levels; i++) {
+            a->lower[i] = fmin(a->lower[i], a->values[i]);
+            a->upper[i] = fmax(a->upper[i], a->values[i]);
+        }
         ss__flags_runs(a, req, rs, zc);
     }
     st = ss__candidates_all(a, req, rs, err);

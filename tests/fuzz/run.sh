@@ -64,7 +64,10 @@ run_target() {
     local t=$1
     local work="$BUILD/corpus/$t" art="$BUILD/artifacts/$t"
     mkdir -p "$work" "$art" "$BUILD/logs"
+    # a fixed seed by default, so that the CI stage is repeatable (the same
+    # mutations from the same corpus); FUZZ_SEED=0 lets libFuzzer pick one
     local args=(-max_total_time="$SECONDS_PER_TARGET" -timeout="$TIMEOUT"
+                -seed="${FUZZ_SEED:-1}"
                 -rss_limit_mb="$RSS_MB" -print_final_stats=1
                 -artifact_prefix="$art/")
     if [[ -f tests/fuzz/dict/$t.dict ]]; then
