@@ -177,6 +177,8 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
     diagrams_filter filter = {SELECT_ALL, 0, 0.0, 0.0, 0.0};
     if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
                                 err) != SS_OK ||
+        ss_calibration_check_atoms(&cal, (unsigned)v[OPT_ATOMS].u, err) !=
+            SS_OK ||
         diagrams_filter_init(v, &cal, &filter, err) != SS_OK)
         return err->code;
     ss_diagram_set *set = NULL;

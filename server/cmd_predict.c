@@ -154,7 +154,9 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
     const char *cal_source = "default";
     ss_calibration cal = ss_calibration_default();
     if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
-                                err) != SS_OK)
+                                err) != SS_OK ||
+        ss_calibration_check_atoms(&cal, (unsigned)v[OPT_ATOMS].u, err) !=
+            SS_OK)
         return err->code;
 
     predict_view pv = {(unsigned)v[OPT_ATOMS].u,

@@ -112,6 +112,7 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
     ss_calibration cal = ss_calibration_default();
     if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
                                 err) != SS_OK ||
+        ss_calibration_check_atoms(&cal, atoms, err) != SS_OK ||
         simulate_check(v, sorted, err) != SS_OK)
         return err->code;
     ss_sampler *sampler = NULL;

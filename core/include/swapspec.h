@@ -206,6 +206,12 @@ ss_calibration ss_calibration_default(void);
  * noise_sd < 0, coupling_spread < 0, unit not NUL-terminated. */
 ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err);
 
+/* SS_EINVAL naming "calibration" when, for this many atoms, the energies
+ * E(λ) (contents within ±C(n,2)) plus 40 noise standard deviations leave
+ * the range of doubles (e.g. pair_shift 1e308 with 8 atoms). */
+ss_status ss_calibration_check_atoms(const ss_calibration *cal, unsigned atoms,
+                                     ss_error *err);
+
 /* E(λ) = offset + pair_shift·C(n,2) + exchange·content. */
 double ss_calibration_energy(const ss_calibration *cal, unsigned atoms,
                              int64_t content);

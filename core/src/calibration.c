@@ -65,3 +65,18 @@ double ss_calibration_content(const ss_calibration *cal, unsigned atoms,
     return (energy - cal->offset - cal->pair_shift * ss__pairs(atoms)) /
            cal->exchange;
 }
+
+ss_status ss_calibration_check_atoms(const ss_calibration *cal, unsigned atoms,
+                                     ss_error *err) {
+    double pairs = ss__pairs(atoms);
+    double base = cal->offset + cal->pair_shift * pairs;
+    double reach = fabs(cal->exchange) * pairs + 40.0 * cal->noise_sd;
+    if (!isfinite(base) || !isfinite(reach) || !isfinite(fabs(base) + reach))
+        return ss_error_set(err, SS_EINVAL, "calibration",
+                            "with %u atoms this calibration gives energies "
+                            "beyond the range of numbers (offset + "
+                            "pair_shift·C(n,2) = %.3g, exchange·C(n,2) + "
+                            "40·noise_sd = %.3g): check its units",
+                            atoms, base, reach);
+    return SS_OK;
+}
