@@ -13,23 +13,9 @@
 
 #include "http_harness.h"
 
-/* The tokens "r-token", "w-token", "a-token" with roles read, write and
- * admin, written to DIR/tokens (digests by sha256sum); path in out. */
+/* The tokens of the three roles: hh_tokens (http_harness.h). */
 static inline void ch_tokens(const char *dir, char *out, size_t cap) {
-    snprintf(out, cap, "%s/tokens", dir);
-    FILE *f = fopen(out, "w");
-    cr_assert(f != NULL);
-    const char *names[3] = {"r-token", "w-token", "a-token"};
-    const char *roles[3] = {"read", "write", "admin"};
-    for (int k = 0; k < 3; k++) {
-        char cmd[256], hex[80] = "";
-        snprintf(cmd, sizeof cmd, "printf %%s %s | sha256sum", names[k]);
-        FILE *p = popen(cmd, "r");
-        cr_assert(p && fscanf(p, "%64s", hex) == 1);
-        pclose(p);
-        fprintf(f, "%s %s\n", roles[k], hex);
-    }
-    fclose(f);
+    hh_tokens(dir, out, cap);
 }
 
 /* A JSON request (method, path, token, body) answered with `status`; the

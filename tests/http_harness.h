@@ -75,6 +75,26 @@ static inline void hh_write(const char *path, const char *text) {
 /* Starts the daemon with extra arguments (NULL-terminated); waits for the
  * listening line.  Returns 0 and fills d, or the daemon's exit status when
  * it stopped instead (its log is in d->log). */
+/* The tokens "r-token", "w-token", "a-token" with roles read, write and
+ * admin, written to DIR/tokens (digests by sha256sum, each line with a
+ * trailing comment, which the format allows); path in out. */
+static inline void hh_tokens(const char *dir, char *out, size_t cap) {
+    snprintf(out, cap, "%s/tokens", dir);
+    FILE *f = fopen(out, "w");
+    cr_assert(f != NULL);
+    const char *names[3] = {"r-token", "w-token", "a-token"};
+    const char *roles[3] = {"read", "write", "admin"};
+    for (int k = 0; k < 3; k++) {
+        char cmd[256], hex[80] = "";
+        snprintf(cmd, sizeof cmd, "printf %%s %s | sha256sum", names[k]);
+        FILE *p = popen(cmd, "r");
+        cr_assert(p && fscanf(p, "%64s", hex) == 1);
+        pclose(p);
+        fprintf(f, "%s %s  # test token\n", roles[k], hex);
+    }
+    fclose(f);
+}
+
 static inline int hh_start(hh_daemon *d, const char *const *extra) {
     char data[128];
     snprintf(data, sizeof data, "%s/store.db", d->dir);

@@ -373,20 +373,8 @@ Test(http, roles_per_route, .init = hd_setup, .fini = hd_teardown,
      .timeout = 120) {
     /* tokens: sha256 of "r-token", "w-token", "a-token" */
     char tokens[256];
-    snprintf(tokens, sizeof tokens, "%s/tokens", hd.dir);
-    FILE *f = fopen(tokens, "w");
-    cr_assert(f != NULL);
+    hh_tokens(hd.dir, tokens, sizeof tokens);
     const char *names[3] = {"r-token", "w-token", "a-token"};
-    const char *roles[3] = {"read", "write", "admin"};
-    for (int k = 0; k < 3; k++) {
-        char cmd[256], hex[80] = "";
-        snprintf(cmd, sizeof cmd, "printf %%s %s | sha256sum", names[k]);
-        FILE *p = popen(cmd, "r");
-        cr_assert(p && fscanf(p, "%64s", hex) == 1);
-        pclose(p);
-        fprintf(f, "%s %s  # test token\n", roles[k], hex);
-    }
-    fclose(f);
     const char *extra[] = {"--tokens", tokens, NULL};
     cr_assert(hh_start(&hd, extra) == 0);
     static const struct {
