@@ -65,6 +65,13 @@ static ss_status diagrams_filter_init(const cli_value *v,
         return ss_error_set(err, SS_EINVAL, "energy-sd",
                             "--energy-sd applies to --energy, which is "
                             "missing");
+    if (v[OPT_ENERGY].present &&
+        !isfinite(ss_calibration_content(cal, (unsigned)v[OPT_ATOMS].u,
+                                         v[OPT_ENERGY].r)))
+        return ss_error_set(err, SS_EINVAL, "energy",
+                            "--energy %.6g is no finite content under this "
+                            "calibration (exchange %.3g): check its units",
+                            v[OPT_ENERGY].r, cal->exchange);
     f->mode = v[OPT_CONTENT].present  ? SELECT_CONTENT
               : v[OPT_ENERGY].present ? SELECT_ENERGY
                                       : SELECT_ALL;

@@ -31,6 +31,12 @@ ss_status ss_calibration_validate(const ss_calibration *cal, ss_error *err) {
         if (!isfinite(fields[i].value))
             return ss_error_set(err, SS_EINVAL, fields[i].field,
                                 "must be a finite number");
+    if (cal->exchange != 0.0 && !isnormal(cal->exchange))
+        return ss_error_set(
+            err, SS_EINVAL, "calibration.exchange",
+            "exchange coupling %.3g is below the smallest normal number: "
+            "energies divided by it leave the range of numbers",
+            cal->exchange);
     if (cal->exchange == 0.0)
         return ss_error_set(
             err, SS_EINVAL, "calibration.exchange",
