@@ -514,11 +514,10 @@ static ss_status ss__estimate_likelihood(ss_analysis *a,
             if (a->flags[i].code != SS_FLAG_UNDERDETERMINED)
                 a->flags[kept++] = a->flags[i];
         a->flag_count = kept;
-        a->interval = SS_INTERVAL_REGION;
-        for (unsigned i = 0; i < d; i++) {
-            a->lower[i] = fmin(region_lo[i], a->values[i]);
-            a->upper[i] = fmax(region_hi[i], a->values[i]);
-        }
+        a->interval = SS_INTERVAL_REGION; /* widened to hold the point by
+                                             ss_analysis_run */
+        memcpy(a->lower, region_lo, d * sizeof *region_lo);
+        memcpy(a->upper, region_hi, d * sizeof *region_hi);
         ss_flag *f = ss__flag_add(
             a, SS_FLAG_UNDERDETERMINED, -1,
             "The per-shot likelihood leaves %d directions of the spectrum "
