@@ -81,6 +81,13 @@ static ss_status diagrams_filter_init(const cli_value *v,
     f->halfwidth = f->sd > 0.0
                        ? (double)DIAGRAMS_WINDOW_SD * f->sd
                        : DIAGRAMS_EXACT_TOL * fmax(1.0, fabs(f->energy));
+    if (!isfinite(f->halfwidth))
+        return ss_error_set(err, SS_EINVAL,
+                            v[OPT_ENERGY_SD].present ? "energy-sd"
+                                                     : "calibration",
+                            "the window of %d standard deviations (%.3g) "
+                            "leaves the range of numbers",
+                            DIAGRAMS_WINDOW_SD, f->sd);
     return SS_OK;
 }
 
