@@ -40,7 +40,7 @@ static const cli_option serve_options[OPT_N] = {
                     "one only loopback addresses are allowed"},
     [OPT_THREADS] =
         {"threads", CLI_UINT, 0, "N", 1, 256, 0,
-         "worker threads (default 16; they mostly wait on group commits)"},
+         "worker threads (default 16: a long computation holds its thread)"},
     [OPT_TLS_CERT] = {"tls-cert", CLI_PATH, 0, "FILE.pem", 0, 0, 0,
                       "serve HTTPS with this certificate"},
     [OPT_TLS_KEY] = {"tls-key", CLI_PATH, 0, "FILE.pem", 0, 0, 0,

@@ -104,68 +104,144 @@ static int analysis_idem_key(http_ctx *ctx, char *key, size_t cap) {
     return 1;
 }
 
-/* Runs and stores a new analysis (no idempotency decision here).  The
- * creation time is taken first: a calibration by reference without
- * measured_at resolves to the version valid at that time. */
+/* A new analysis between its computation and the answer: the record on
+ * its way through the group commit while the connection is suspended. */
+typedef struct {
+    committer_item item;
+    store_record rec;
+    http_ctx *ctx;
+    int has_key; /* key and fp are set; the in-flight key is held */
+    char key[STORE_IDEMPOTENCY_KEY_MAX + 1];
+    char fp[65];
+} analysis_pending;
+
+static void analysis_pending_free(void *state) {
+    analysis_pending *p = state;
+    if (p->has_key)
+        http_inflight_release(p->ctx->app, p->key);
+    free(p->rec.request_json);
+    free(p->rec.result_json);
+    free(p);
+}
+
+/* The writer's callback (on its thread): the commit is over. */
+static void analysis_committed(committer_item *item, void *arg) {
+    (void)item;
+    analysis_pending *p = arg;
+    http_resume(p->ctx);
+}
+
+/* After the commit (on the worker thread): 201 with the record, or the
+ * commit's failure; a key stored meanwhile by another process is answered
+ * as the replay it is. */
+static ss_status analysis_finish(http_ctx *ctx, void *state, ss_error *err) {
+    analysis_pending *p = state;
+    ss_status st = p->item.put.status;
+    if (st == SS_OK) {
+        store_revision_info first;
+        memset(&first, 0, sizeof first);
+        first.revision = first.revision_count = 1;
+        memcpy(first.software_version, p->rec.software_version,
+               sizeof first.software_version);
+        st = analysis_record_text(ctx, &p->rec, &first, err);
+        ctx->status = 201;
+        snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s",
+                 p->rec.id);
+        return st;
+    }
+    *err = p->item.put.error;
+    if (st != SS_ECONFLICT || !p->has_key ||
+        strcmp(err->field, "idempotency_key") != 0)
+        return st;
+    ss_error_clear(err);
+    store_conn *c = http_store_conn(ctx->app, err);
+    if (c == NULL)
+        return err->code;
+    int found = 0;
+    char stored_fp[65], stored_id[32];
+    st = store_idempotency_find(c, p->key, stored_fp, stored_id, &found, err);
+    if (st == SS_OK && found && strcmp(stored_fp, p->fp) == 0)
+        return analysis_replay(ctx, c, stored_id, err);
+    if (st == SS_OK)
+        st = ss_error_set(err, SS_EIDEMPOTENCY, "Idempotency-Key",
+                          "this Idempotency-Key was used with a different "
+                          "request body");
+    return st;
+}
+
+/* Runs a new analysis and hands its record to the group commit; the answer
+ * follows in analysis_finish.  The creation time is taken first: a
+ * calibration by reference without measured_at resolves to the version
+ * valid at that time.  With a key, the in-flight key is held on entry and
+ * passes to the pending state (released by analysis_pending_free). */
 static ss_status analysis_compute(http_ctx *ctx, const char *key,
                                   const char *fingerprint, ss_error *err) {
+    analysis_pending *p = calloc(1, sizeof *p);
+    if (p == NULL) {
+        if (key != NULL)
+            http_inflight_release(ctx->app, key);
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    }
+    p->ctx = ctx;
+    if (key != NULL) {
+        p->has_key = 1;
+        snprintf(p->key, sizeof p->key, "%s", key);
+        snprintf(p->fp, sizeof p->fp, "%s", fingerprint);
+    }
+    store_record *rec = &p->rec;
     api_request req;
     ss_status st = api_request_from_json(ctx->json, &req, err);
-    if (st != SS_OK)
+    if (st != SS_OK) {
+        analysis_pending_free(p);
         return st;
-    store_record rec;
-    memset(&rec, 0, sizeof rec);
-    store_time_now(rec.created_at);
+    }
+    store_time_now(rec->created_at);
     store_conn *c = NULL;
     if (req.cal_ref[0] && (c = http_store_conn(ctx->app, err)) == NULL)
         st = err->code;
     analysis_calibration cal;
     if (st == SS_OK)
-        st = analysis_calibration_resolve(c, &req, rec.created_at, &cal, err);
+        st = analysis_calibration_resolve(c, &req, rec->created_at, &cal, err);
     size_t result_len = 0;
     if (st == SS_OK)
         st = analysis_execute_text(
-            &req, &cal, &http_app_settings(ctx->app)->budget, &rec.result_json,
-            &result_len, rec.method, err);
+            &req, &cal, &http_app_settings(ctx->app)->budget, &rec->result_json,
+            &result_len, rec->method, err);
     if (st == SS_OK)
-        st = store_id_generate(rec.id, err);
+        st = store_id_generate(rec->id, err);
     if (st == SS_OK) {
-        snprintf(rec.label, sizeof rec.label, "%s", req.label);
-        rec.levels = req.req.levels;
-        snprintf(rec.software_version, sizeof rec.software_version, "%s",
+        snprintf(rec->label, sizeof rec->label, "%s", req.label);
+        rec->levels = req.req.levels;
+        snprintf(rec->software_version, sizeof rec->software_version, "%s",
                  SWAPSPEC_VERSION);
         if (strcmp(cal.source, "ref") == 0) {
-            snprintf(rec.calibration_name, sizeof rec.calibration_name, "%s",
+            snprintf(rec->calibration_name, sizeof rec->calibration_name, "%s",
                      cal.name);
-            rec.calibration_version = cal.version;
+            rec->calibration_version = cal.version;
         }
-        snprintf(rec.measured_at, sizeof rec.measured_at, "%s",
+        snprintf(rec->measured_at, sizeof rec->measured_at, "%s",
                  req.measured_at);
         /* the request as received (already checked to be one JSON object
          * without duplicate keys); the result rendered once as text, and
          * the response assembled from the same texts that are stored */
-        rec.request_json = strndup(ctx->body, ctx->body_len);
-        if (rec.request_json == NULL)
+        rec->request_json = strndup(ctx->body, ctx->body_len);
+        if (rec->request_json == NULL)
             st = ss_error_set(err, SS_ENOMEM, "", NULL);
     }
-    if (st == SS_OK) /* group commit: returns once the record is durable */
-        st = committer_put(http_app_committer(ctx->app), &rec, key, fingerprint,
-                           err);
-    if (st == SS_OK) {
-        store_revision_info first;
-        memset(&first, 0, sizeof first);
-        first.revision = first.revision_count = 1;
-        memcpy(first.software_version, rec.software_version,
-               sizeof first.software_version);
-        st = analysis_record_text(ctx, &rec, &first, err);
-        ctx->status = 201;
-        snprintf(ctx->location, sizeof ctx->location, "/v1/analyses/%s",
-                 rec.id);
-    }
-    free(rec.request_json);
-    free(rec.result_json);
     api_request_release(&req);
-    return st;
+    if (st != SS_OK) {
+        analysis_pending_free(p);
+        return st;
+    }
+    /* group commit: the connection waits suspended, the worker thread goes
+     * on; analysis_committed resumes it once the record is durable */
+    p->item.put.rec = rec;
+    p->item.put.idem_key = p->has_key ? p->key : NULL;
+    p->item.put.fingerprint = p->has_key ? p->fp : NULL;
+    http_defer(ctx, analysis_finish, p, analysis_pending_free);
+    committer_submit(http_app_committer(ctx->app), &p->item, analysis_committed,
+                     p);
+    return SS_OK;
 }
 
 ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
@@ -190,28 +266,15 @@ ss_status handle_analyses_create(http_ctx *ctx, ss_error *err) {
     char stored_fp[65], stored_id[32];
     ss_status st =
         store_idempotency_find(c, key, stored_fp, stored_id, &found, err);
-    if (st == SS_OK && found && strcmp(stored_fp, fp) != 0)
+    if (st == SS_OK && !found) /* the key passes to the pending analysis */
+        return analysis_compute(ctx, key, fp, err);
+    if (st == SS_OK && strcmp(stored_fp, fp) != 0)
         st = ss_error_set(err, SS_EIDEMPOTENCY, "Idempotency-Key",
                           "this Idempotency-Key was first used with a "
                           "different request body; use a new key for a new "
                           "request");
-    else if (st == SS_OK && found)
+    else if (st == SS_OK)
         st = analysis_replay(ctx, c, stored_id, err);
-    else if (st == SS_OK) {
-        st = analysis_compute(ctx, key, fp, err);
-        if (st == SS_ECONFLICT && strcmp(err->field, "idempotency_key") == 0) {
-            /* stored meanwhile by another process */
-            ss_error_clear(err);
-            st = store_idempotency_find(c, key, stored_fp, stored_id, &found,
-                                        err);
-            if (st == SS_OK && found && strcmp(stored_fp, fp) == 0)
-                st = analysis_replay(ctx, c, stored_id, err);
-            else if (st == SS_OK)
-                st = ss_error_set(err, SS_EIDEMPOTENCY, "Idempotency-Key",
-                                  "this Idempotency-Key was used with a "
-                                  "different request body");
-        }
-    }
     http_inflight_release(ctx->app, key);
     return st;
 }

@@ -28,7 +28,7 @@ typedef struct {
     char data_path[512];
     char tokens_path[512]; /* "" = no access control */
     char tls_cert[512], tls_key[512];
-    unsigned threads;            /* worker threads (default 4) */
+    unsigned threads;            /* worker threads (default 16) */
     size_t body_limit;           /* bytes (default 1 MiB) */
     unsigned connection_timeout; /* seconds (default 30) */
     unsigned connection_limit;   /* default 256 */
@@ -48,6 +48,7 @@ typedef struct http_app http_app; /* the running service (http_server.c) */
 
 typedef struct http_ctx http_ctx;
 typedef ss_status (*http_handler)(http_ctx *ctx, ss_error *err);
+typedef ss_status (*http_finish)(http_ctx *ctx, void *state, ss_error *err);
 
 typedef struct {
     const char *method;
@@ -87,7 +88,23 @@ struct http_ctx {
     const char *content_type; /* for text */
     char location[128];
     int replayed; /* Idempotent-Replayed: true */
+    /* a deferred answer (http_defer) */
+    http_finish finish;
+    void *state;
+    void (*release)(void *state);
 };
+
+/* Deferred answers.  A handler that waits for work another thread finishes
+ * (the group commit) calls http_defer and returns SS_OK without an answer:
+ * the connection is suspended at once, so the worker thread goes on
+ * serving other connections instead of waiting.  Call it BEFORE handing
+ * the work over.  The other thread calls http_resume(ctx) when the work is
+ * over (exactly once); the pipeline then calls finish(ctx, state, err) on
+ * the worker thread, which answers as a handler would.  release(state)
+ * runs when the request ends, finished or not. */
+void http_defer(http_ctx *ctx, http_finish finish, void *state,
+                void (*release)(void *state));
+void http_resume(http_ctx *ctx);
 
 /* The caller thread's store connection (opened on first use, closed when
  * the worker thread ends).  NULL with err set when the store fails. */

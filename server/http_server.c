@@ -63,6 +63,8 @@ typedef struct {
     const char *route; /* template, for logs and metrics */
     char method[16];
     char path[256];
+    http_ctx ctx; /* the handler's view; lives as long as the request, so
+                     that a deferred answer can finish after a suspension */
 } http_request;
 
 void http_settings_default(http_settings *s) {
@@ -234,23 +236,89 @@ static int http_is_json(const char *ct) {
     return n == 16 && strncasecmp(ct, "application/json", 16) == 0;
 }
 
+static void http_log_event(const char *event, json_t *fields);
+
+/* A store failure: counted, logged whole for the operator (file, SQLite's
+ * words and code), and told to the client without the server's paths or
+ * internals (RFC 9457 §5), with what to do. */
+static void http_store_failed(http_app *app, const http_request *req,
+                              ss_error *err) {
+    metrics_store_error(app->stats);
+    http_log_event("store-error", json_pack("{s:s,s:s,s:s,s:s}", "method",
+                                            req->method, "route", req->route,
+                                            "code", ss_status_name(err->code),
+                                            "detail", err->message));
+    const char *what =
+        err->code == SS_ESTOREFULL ? "the store has no space left"
+        : err->code == SS_EBUSY    ? "the store is busy with another writer"
+                                   : "the store failed";
+    ss_error told; /* ss_error_set keeps the first error: a new one */
+    ss_error_clear(&told);
+    ss_error_set(&told, err->code, err->field,
+                 "%s; the request was not carried out and nothing was "
+                 "stored: retry later (an Idempotency-Key makes the retry "
+                 "safe); the service log has the details",
+                 what);
+    *err = told;
+}
+
+/* The answer once the handler (or its deferred finish) is over. */
+static enum MHD_Result http_answer(http_app *app, struct MHD_Connection *conn,
+                                   http_request *req, ss_status st,
+                                   ss_error *err) {
+    http_ctx *ctx = &req->ctx;
+    if (st != SS_OK) {
+        json_decref(ctx->doc);
+        free(ctx->text);
+        ctx->doc = NULL;
+        ctx->text = NULL;
+        if (err->code == SS_OK)
+            ss_error_set(err, st, "", NULL);
+        if (st == SS_EBUSY || st == SS_ESTORE || st == SS_ESTOREFULL)
+            http_store_failed(app, req, err);
+        return http_send_problem(conn, req, err, NULL);
+    }
+    char *text = ctx->text;
+    json_t *doc = ctx->doc;
+    ctx->text = NULL; /* http_send takes them */
+    ctx->doc = NULL;
+    return http_send(conn, req, ctx->status ? ctx->status : 200, doc, 0, text,
+                     ctx->text_len, ctx->content_type, ctx, NULL);
+}
+
+void http_defer(http_ctx *ctx, http_finish finish, void *state,
+                void (*release)(void *state)) {
+    ctx->finish = finish;
+    ctx->state = state;
+    ctx->release = release;
+    MHD_suspend_connection(ctx->conn);
+}
+
+void http_resume(http_ctx *ctx) { MHD_resume_connection(ctx->conn); }
+
 /* The whole pipeline for a complete request. */
 static enum MHD_Result http_pipeline(http_app *app, struct MHD_Connection *conn,
                                      http_request *req) {
     ss_error err;
     ss_error_clear(&err);
-    http_ctx ctx;
-    memset(&ctx, 0, sizeof ctx);
-    ctx.app = app;
-    ctx.conn = conn;
-    ctx.method = req->method;
-    ctx.path = req->path;
-    ctx.body = req->body ? req->body : "";
-    ctx.body_len = req->len;
+    http_ctx *ctx = &req->ctx;
+    if (ctx->finish != NULL) { /* resumed after a deferral */
+        http_finish finish = ctx->finish;
+        ctx->finish = NULL;
+        ss_status st = finish(ctx, ctx->state, &err);
+        return http_answer(app, conn, req, st, &err);
+    }
+    memset(ctx, 0, sizeof *ctx);
+    ctx->app = app;
+    ctx->conn = conn;
+    ctx->method = req->method;
+    ctx->path = req->path;
+    ctx->body = req->body ? req->body : "";
+    ctx->body_len = req->len;
     char allowed[64];
-    ctx.route = http_route_match(req->method, req->path, ctx.id, sizeof ctx.id,
-                                 allowed, sizeof allowed);
-    if (ctx.route == NULL) {
+    ctx->route = http_route_match(req->method, req->path, ctx->id,
+                                  sizeof ctx->id, allowed, sizeof allowed);
+    if (ctx->route == NULL) {
         if (allowed[0]) {
             ss_error_set(&err, SS_EMETHOD, "",
                          "%s is not allowed on %s; use %s", req->method,
@@ -263,19 +331,19 @@ static enum MHD_Result http_pipeline(http_app *app, struct MHD_Connection *conn,
         req->route = "unmatched";
         return http_send_problem(conn, req, &err, NULL);
     }
-    req->route = ctx.route->path;
-    ctx.role = auth_check(app->tokens, http_header(&ctx, "Authorization"));
-    if (ctx.route->role != AUTH_NONE && ctx.role == AUTH_NONE) {
+    req->route = ctx->route->path;
+    ctx->role = auth_check(app->tokens, http_header(ctx, "Authorization"));
+    if (ctx->route->role != AUTH_NONE && ctx->role == AUTH_NONE) {
         ss_error_set(&err, SS_EUNAUTHORIZED, "",
                      "this route needs a bearer token with role %s or above",
-                     auth_role_name(ctx.route->role));
+                     auth_role_name(ctx->route->role));
         return http_send_problem(conn, req, &err, NULL);
     }
-    if (ctx.route->role > ctx.role) {
+    if (ctx->route->role > ctx->role) {
         ss_error_set(&err, SS_EFORBIDDEN, "",
                      "the token's role (%s) does not allow %s %s (needs %s)",
-                     auth_role_name(ctx.role), req->method, ctx.route->path,
-                     auth_role_name(ctx.route->role));
+                     auth_role_name(ctx->role), req->method, ctx->route->path,
+                     auth_role_name(ctx->route->role));
         return http_send_problem(conn, req, &err, NULL);
     }
     if (req->too_big) {
@@ -284,16 +352,16 @@ static enum MHD_Result http_pipeline(http_app *app, struct MHD_Connection *conn,
                      app->settings.body_limit);
         return http_send_problem(conn, req, &err, NULL);
     }
-    if (ctx.route->json_body) {
-        if (!http_is_json(http_header(&ctx, MHD_HTTP_HEADER_CONTENT_TYPE))) {
+    if (ctx->route->json_body) {
+        if (!http_is_json(http_header(ctx, MHD_HTTP_HEADER_CONTENT_TYPE))) {
             ss_error_set(&err, SS_EMEDIATYPE, "",
                          "send the body as application/json");
             return http_send_problem(conn, req, &err, NULL);
         }
         json_error_t jerr;
-        ctx.json =
-            json_loadb(ctx.body, ctx.body_len, JSON_REJECT_DUPLICATES, &jerr);
-        if (ctx.json == NULL) {
+        ctx->json =
+            json_loadb(ctx->body, ctx->body_len, JSON_REJECT_DUPLICATES, &jerr);
+        if (ctx->json == NULL) {
             ss_error_set(&err, SS_EMALFORMED, "",
                          "the body is not valid JSON: %s (line %d, column "
                          "%d)",
@@ -301,19 +369,12 @@ static enum MHD_Result http_pipeline(http_app *app, struct MHD_Connection *conn,
             return http_send_problem(conn, req, &err, NULL);
         }
     }
-    ss_status st = ctx.route->handler(&ctx, &err);
-    json_decref(ctx.json);
-    if (st != SS_OK) {
-        json_decref(ctx.doc);
-        free(ctx.text);
-        if (st == SS_EBUSY || st == SS_ESTORE || st == SS_ESTOREFULL)
-            metrics_store_error(app->stats);
-        if (err.code == SS_OK)
-            ss_error_set(&err, st, "", NULL);
-        return http_send_problem(conn, req, &err, NULL);
-    }
-    return http_send(conn, req, ctx.status ? ctx.status : 200, ctx.doc, 0,
-                     ctx.text, ctx.text_len, ctx.content_type, &ctx, NULL);
+    ss_status st = ctx->route->handler(ctx, &err);
+    json_decref(ctx->json);
+    ctx->json = NULL;
+    if (st == SS_OK && ctx->finish != NULL)
+        return MHD_YES; /* suspended: the answer comes after http_resume */
+    return http_answer(app, conn, req, st, &err);
 }
 
 static enum MHD_Result http_access(void *cls, struct MHD_Connection *conn,
@@ -413,6 +474,10 @@ static void http_completed(void *cls, struct MHD_Connection *conn,
                   (json_int_t)req->len, "bytes_out", (json_int_t)req->bytes_out,
                   "completed", tc == MHD_REQUEST_TERMINATED_COMPLETED_OK);
     log_line(line);
+    if (req->ctx.release != NULL)
+        req->ctx.release(req->ctx.state);
+    json_decref(req->ctx.doc);
+    free(req->ctx.text);
     free(req->body);
     free(req);
     *con_cls = NULL;
@@ -496,7 +561,7 @@ int http_serve(const http_settings *settings, ss_error *err) {
         goto done;
     }
     unsigned flags = MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_EPOLL |
-                     MHD_USE_ITC | MHD_USE_ERROR_LOG;
+                     MHD_USE_ITC | MHD_ALLOW_SUSPEND_RESUME | MHD_USE_ERROR_LOG;
     int tls = settings->tls_cert[0] != '\0';
     if (tls) {
         if (MHD_is_feature_supported(MHD_FEATURE_TLS) != MHD_YES) {
@@ -582,6 +647,10 @@ int http_serve(const http_settings *settings, ss_error *err) {
         struct timespec nap = {0, 20 * 1000 * 1000};
         nanosleep(&nap, NULL);
     }
+    /* connections still suspended for a commit are resumed by the drain
+     * (stopping MHD with one suspended is not allowed); requests still
+     * computing get 503 when they hand their record over */
+    committer_drain(app->writer);
     MHD_stop_daemon(d);
     d = NULL;
     if (listen_fd != MHD_INVALID_SOCKET)

@@ -174,12 +174,25 @@ static int jt_reads_back(uint64_t m, int e, int k, unsigned biased, int p,
 /* Writes the 17 digits of D with decimal exponent E as "%.17g" would,
  * then jansson's tidying. */
 static size_t jt_place(int neg, uint64_t D, int E, char out[32]) {
+    static const char pairs[201] = "00010203040506070809"
+                                   "10111213141516171819"
+                                   "20212223242526272829"
+                                   "30313233343536373839"
+                                   "40414243444546474849"
+                                   "50515253545556575859"
+                                   "60616263646566676869"
+                                   "70717273747576777879"
+                                   "80818283848586878889"
+                                   "90919293949596979899";
     char d[18];
-    for (int i = 16; i >= 0; i--) {
-        d[i] = (char)('0' + D % 10u);
-        D /= 10u;
+    for (int i = 15; i >= 1; i -= 2) { /* d[1..16] two digits at a time */
+        unsigned two = (unsigned)(D % 100u);
+        D /= 100u;
+        d[i] = pairs[2 * two];
+        d[i + 1] = pairs[2 * two + 1];
     }
-    int last = 16; /* last significant digit */
+    d[0] = (char)('0' + D); /* D < 10 is left */
+    int last = 16;          /* last significant digit */
     while (last > 0 && d[last] == '0')
         last--;
     size_t n = 0;
@@ -221,6 +234,24 @@ static size_t jt_place(int neg, uint64_t D, int E, char out[32]) {
     return n;
 }
 
+/* floor(log10 |x|) for a normal x = 1.f·2^e2, or one off (the caller's
+ * loop corrects either way): e2·log10(2) gives it to within one, and a
+ * comparison with the power of ten above settles it. */
+static int jt_decimal_exponent(double x, int e2) {
+    static const double above[] = {
+        1e-11, 1e-10, 1e-9, 1e-8, 1e-7, 1e-6, 1e-5, 1e-4, 1e-3, 1e-2,
+        1e-1,  1e0,   1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,
+        1e9,   1e10,  1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18};
+    /* 78913 / 2^18 = 0.30102920… < log10 2 = 0.30102999…, so the floor is
+     * floor(e2·log10 2) or, for e2 < 0, one above it (|e2| < 1100) */
+    int E = e2 >= 0 ? (e2 * 78913) >> 18
+                    : -((-e2 * 78913 + (1 << 18) - 1) >> 18); /* floor */
+    int i = E + 12; /* above[i] = 10^(E+1) */
+    if (i < 0 || i >= (int)(sizeof above / sizeof above[0]))
+        return (int)floor(log10(fabs(x)));
+    return fabs(x) >= above[i] ? E + 1 : E;
+}
+
 size_t json_text_number(double x, char out[32]) {
     if (!isfinite(x)) {
         memcpy(out, "null", 5);
@@ -233,7 +264,7 @@ size_t json_text_number(double x, char out[32]) {
         return jt_fallback(x, out);
     uint64_t m = (u & ((1ull << 52) - 1u)) | (1ull << 52);
     int e = (int)biased - 1075;
-    int E = (int)floor(log10(fabs(x)));
+    int E = jt_decimal_exponent(x, (int)biased - 1023);
     for (int tries = 0; tries < 3; tries++) {
         int k = 16 - E;
         uint64_t t, r;
@@ -252,29 +283,16 @@ size_t json_text_number(double x, char out[32]) {
             E++;
             k--;
         }
-        /* the fewest digits that still read back as x (17 always do, and
-         * if p digits do then p + 1 do: a binary search) */
-        int lo = 1, hi = 17;
+        /* the fewest digits that still read back as x.  17 always do.
+         * When 15 do, the 15-digit rounding is the shortest one padded
+         * with zeros: a decimal of p <= 15 digits that reads back lies
+         * within half an ulp of x (relative 2^-53 ~ 1.1e-16), closer than
+         * half the spacing of 15-digit decimals (relative > 5e-16), so it
+         * IS the 15-digit rounding; jt_place drops the zeros.  Only 16 and
+         * 17 need their own test. */
         uint64_t best = r, dp16 = 0, dp15 = 0;
-        /* computed values mostly need 16 or 17 digits: look there first */
-        if (!jt_reads_back(m, e, k, biased, 16, &dp16))
-            lo = hi; /* 17 */
-        else if (!jt_reads_back(m, e, k, biased, 15, &dp15)) {
-            lo = hi = 16;
-            best = dp16;
-        } else {
-            hi = 15;
-            best = dp15;
-        }
-        while (lo < hi) {
-            int mid = (lo + hi) / 2;
-            uint64_t dp = 0;
-            if (jt_reads_back(m, e, k, biased, mid, &dp)) {
-                hi = mid;
-                best = dp;
-            } else
-                lo = mid + 1;
-        }
+        if (jt_reads_back(m, e, k, biased, 16, &dp16))
+            best = jt_reads_back(m, e, k, biased, 15, &dp15) ? dp15 : dp16;
         if (best == jt_pow10[17]) { /* p digits rounded up to 10^p */
             best = jt_pow10[16];
             E++;

@@ -21,6 +21,7 @@
  * Owns: the store (its path copy), each connection's sqlite3 handle and
  * prepared statements.
  */
+#include <errno.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -74,9 +75,18 @@ ss_status store_sqlite_status(int rc) {
 ss_status store_sqlite_fail(sqlite3 *db, const char *path, int rc,
                             const char *doing, ss_error *err) {
     const char *msg = db != NULL ? sqlite3_errmsg(db) : sqlite3_errstr(rc);
-    return ss_error_set(err, store_sqlite_status(rc), "",
-                        "store %s: %s: %s (SQLite code %d)", path, doing, msg,
-                        rc);
+    ss_status st = store_sqlite_status(rc);
+    /* an I/O error whose system call ran out of space (SQLite reports
+     * growing the -shm file that way, SQLITE_IOERR_SHMSIZE) is a full
+     * store too */
+    int sys = db != NULL ? sqlite3_system_errno(db) : 0;
+    if ((rc & 0xff) == SQLITE_IOERR && (sys == ENOSPC || sys == EDQUOT)) {
+        return ss_error_set(err, SS_ESTOREFULL, "",
+                            "store %s: %s: %s (SQLite code %d: %s)", path,
+                            doing, msg, rc, strerror(sys));
+    }
+    return ss_error_set(err, st, "", "store %s: %s: %s (SQLite code %d)", path,
+                        doing, msg, rc);
 }
 
 ss_status store_sqlite_connect(const char *path, int busy_timeout_ms,
