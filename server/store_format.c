@@ -11,9 +11,11 @@
  * (created_at, id); it is opaque to clients and decoded strictly.
  * Owns no memory.
  */
+#include <pthread.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/random.h>
+#include <time.h>
 
 #include "store_internal.h"
 
@@ -228,8 +230,31 @@ static ss_status sf_random_id(const char *prefix, char out[32], ss_error *err) {
     return SS_OK;
 }
 
+/* The counter of store_id_generate, started once at a random value. */
+static uint32_t sf_id_counter;
+static int sf_id_seeded; /* 1 when seeded, -1 when the random source failed */
+static pthread_once_t sf_id_once = PTHREAD_ONCE_INIT;
+
+static void sf_id_seed(void) {
+    uint32_t start = 0;
+    sf_id_seeded =
+        getrandom(&start, sizeof start, 0) == (ssize_t)sizeof start ? 1 : -1;
+    __atomic_store_n(&sf_id_counter, start, __ATOMIC_RELAXED);
+}
+
 ss_status store_id_generate(char out[32], ss_error *err) {
-    return sf_random_id("an_", out, err);
+    pthread_once(&sf_id_once, sf_id_seed);
+    if (sf_id_seeded < 0)
+        return ss_error_set(err, SS_EINTERNAL, "", "the random source failed");
+    struct timespec now;
+    clock_gettime(CLOCK_REALTIME, &now);
+    uint64_t ms =
+        ((uint64_t)now.tv_sec * 1000u + (uint64_t)(now.tv_nsec / 1000000)) &
+        0xffffffffffffull; /* 48 bits: until the year 10889 */
+    uint32_t n = __atomic_fetch_add(&sf_id_counter, 1u, __ATOMIC_RELAXED);
+    snprintf(out, 32, "an_%012llx%08lx", (unsigned long long)ms,
+             (unsigned long)n);
+    return SS_OK;
 }
 
 ss_status store_job_id_generate(char out[32], ss_error *err) {
