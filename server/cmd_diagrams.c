@@ -29,6 +29,16 @@ enum {
 #define DIAGRAMS_WINDOW_SD 3
 /* Relative tolerance of an exact energy match (noise_sd 0). */
 #define DIAGRAMS_EXACT_TOL 1e-9
+/* Most diagrams one served document may list (the selection plus the
+ * members of its degenerate groups).  Rendering and sending cost 15-20 µs a
+ * diagram on the 2-core reference machine, Release build, in documents of
+ * a million (the 907 376 diagrams of (n, d) = (63, 16) in 17 s, the
+ * 999 941 of (3461, 3) in 15 s), less in smaller ones (a window of
+ * (63, 16) listing 41 242 and their groups: 0.76 s in all), so 100 000
+ * take about 2 s at most.  The selection is counted after the enumeration,
+ * which the budget's max_diagrams bounds (0.3-0.5 s for a million
+ * diagrams), and before anything is rendered. */
+#define DIAGRAMS_SERVED_LISTED 100000U
 
 static const cli_option diagrams_options[OPT_N] = {
     [OPT_LEVELS] = CLI_OPTION_LEVELS,
@@ -146,16 +156,55 @@ static json_t *diagrams_degenerate(const ss_diagram_set *set,
     return all;
 }
 
+/* Marks the selected diagrams in keep; returns how many diagrams the
+ * document would list (the selection and its degenerate groups). */
+static size_t diagrams_select(const ss_diagram_set *set,
+                              const ss_levels *groups, const diagrams_filter *f,
+                              const ss_calibration *cal, unsigned char *keep) {
+    size_t listed = 0;
+    for (size_t i = 0; i < set->count; i++) {
+        double e = ss_calibration_energy(cal, set->atoms, set->content[i]);
+        keep[i] = (unsigned char)diagrams_keep(f, set->content[i], e);
+        listed += keep[i];
+    }
+    for (size_t l = 0; l < groups->count; l++) {
+        size_t kept = 0;
+        for (size_t m = groups->first[l]; m < groups->first[l + 1]; m++)
+            kept += keep[groups->members[m]];
+        listed += kept >= 2 ? kept : 0;
+    }
+    return listed;
+}
+
+/* Over DIAGRAMS_SERVED_LISTED: SS_EBUDGET naming what selected so much. */
+static ss_status diagrams_check(const cli_value *v, const diagrams_filter *f,
+                                int inline_calibration, size_t listed,
+                                ss_error *err) {
+    if (listed <= DIAGRAMS_SERVED_LISTED)
+        return SS_OK;
+    const char *field = "atoms";
+    if (f->mode == SELECT_CONTENT)
+        field = "content";
+    else if (f->mode == SELECT_ENERGY)
+        field = v[OPT_ENERGY_SD].present ? "energy-sd"
+                : inline_calibration     ? "calibration"
+                                         : "energy";
+    return ss_error_set(err, SS_EBUDGET, field,
+                        "at most %u listed diagrams (the selection and its "
+                        "degenerate groups) per request; got %zu: narrow the "
+                        "selection",
+                        DIAGRAMS_SERVED_LISTED, listed);
+}
+
 static void diagrams_render(json_t *doc, const ss_diagram_set *set,
                             const ss_levels *groups, const diagrams_filter *f,
-                            const ss_calibration *cal, unsigned char *keep,
-                            ss_error *err) {
+                            const ss_calibration *cal,
+                            const unsigned char *keep, ss_error *err) {
     json_t *list = json_array();
     size_t listed = 0;
     for (size_t i = 0; list != NULL && i < set->count; i++) {
-        double e = ss_calibration_energy(cal, set->atoms, set->content[i]);
-        keep[i] = (unsigned char)diagrams_keep(f, set->content[i], e);
         if (keep[i]) {
+            double e = ss_calibration_energy(cal, set->atoms, set->content[i]);
             cli_json_append(list, diagrams_entry(set, i, e, f, err), err);
             listed++;
         }
@@ -208,6 +257,11 @@ static ss_status diagrams_run(const cli_parsed *args, json_t **doc_out,
         doc = json_object();
         if (keep == NULL || doc == NULL)
             ss_error_set(err, SS_ENOMEM, "", "no memory for the result");
+    }
+    if (err->code == SS_OK) {
+        size_t listed = diagrams_select(set, groups, &filter, &cal, keep);
+        if (args->budget != NULL) /* served over HTTP */
+            diagrams_check(v, &filter, args->calibration != NULL, listed, err);
     }
     if (err->code == SS_OK) {
         diagrams_render(doc, set, groups, &filter, &cal, keep, err);

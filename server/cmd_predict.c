@@ -17,6 +17,15 @@ enum { OPT_LEVELS, OPT_ATOMS, OPT_SPECTRUM, OPT_TOP, OPT_CALIBRATION, OPT_N };
 
 #define PREDICT_DEFAULT_TOP 20
 #define PREDICT_PER_LEVEL 8 /* diagrams listed per energy level */
+/* Most entries (ranked diagrams, energy levels, diagrams listed under the
+ * levels) one served document may hold.  Rendering and sending cost about
+ * 6 µs an entry on the 2-core reference machine, Release build, over HTTP
+ * ((n, d) = (63, 16): 3.05 s with top 79 066, 2.59 s with top 20), and
+ * 15-20 µs in documents of a million entries (907 000 ranked diagrams of
+ * (63, 16) in 19 s, a million levels of (3461, 3) in 13 s), so 100 000
+ * take well under 2 s; the Schur table before them is bounded by the
+ * budget's max_table_cells (about 2.5 s at the service's 8 000 000). */
+#define PREDICT_SERVED_ENTRIES 100000ULL
 
 static const cli_option predict_options[OPT_N] = {
     [OPT_LEVELS] = CLI_OPTION_LEVELS,
@@ -146,6 +155,49 @@ static void predict_render(json_t *doc, const predict_view *pv, size_t top,
         err);
 }
 
+/* The smallest content sum of a diagram of n boxes with at most d rows:
+ * that of the most balanced one (rows of q + 1, then q boxes), since moving
+ * a box down to a shorter row lowers the content. */
+static int64_t predict_content_min(unsigned n, unsigned d) {
+    int64_t rows = n < d ? n : d, q = n / rows, extra = n % rows, c = 0;
+    for (int64_t i = 0; i < rows; i++) {
+        int64_t l = q + (i < extra);
+        c += l * (l - 1) / 2 - i * l;
+    }
+    return c;
+}
+
+/* The cost model of a served prediction, before the table is computed:
+ * with N = ss_diagram_count(n, d) diagrams and at most
+ * L = min(N, C(n,2) − c_min + 1) energy levels (distinct contents), the
+ * document lists at most min(top, N) + L + min(N, 8 L) entries.  Over
+ * PREDICT_SERVED_ENTRIES: SS_EBUDGET naming top when fewer ranked diagrams
+ * would do, else atoms. */
+static ss_status predict_check(const cli_value *v, unsigned atoms,
+                               unsigned levels, ss_error *err) {
+    unsigned long long n = atoms, count = ss_diagram_count(atoms, levels);
+    unsigned long long span =
+        (unsigned long long)((int64_t)(n * (n - 1) / 2) -
+                             predict_content_min(atoms, levels) + 1);
+    unsigned long long lv = span < count ? span : count;
+    unsigned long long listed = PREDICT_PER_LEVEL * lv;
+    unsigned long long top =
+        v[OPT_TOP].present ? v[OPT_TOP].u : PREDICT_DEFAULT_TOP;
+    unsigned long long part = lv + (listed < count ? listed : count);
+    unsigned long long ranked = top < count ? top : count;
+    if (ranked + part <= PREDICT_SERVED_ENTRIES)
+        return SS_OK;
+    int by_top = v[OPT_TOP].present && part <= PREDICT_SERVED_ENTRIES;
+    return ss_error_set(err, SS_EBUDGET, by_top ? "top" : "atoms",
+                        "at most %llu entries (ranked diagrams, energy levels "
+                        "and the diagrams listed under them) per request; "
+                        "got up to %llu: %llu ranked of %llu diagrams, up to "
+                        "%llu energy levels of %u atoms on %u levels with up "
+                        "to %llu diagrams under them",
+                        PREDICT_SERVED_ENTRIES, ranked + part, ranked, count,
+                        lv, atoms, levels, part - lv);
+}
+
 static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
                              ss_error *err) {
     const cli_value *v = args->values;
@@ -165,6 +217,9 @@ static ss_status predict_run(const cli_parsed *args, json_t **doc_out,
                        NULL,
                        NULL,
                        NULL};
+    if (args->budget != NULL && /* served over HTTP */
+        predict_check(v, pv.atoms, pv.levels, err) != SS_OK)
+        return err->code;
     ss_distribution *dist = NULL;
     if (ss_distribution_compute(pv.atoms, pv.levels, v[OPT_SPECTRUM].list,
                                 v[OPT_SPECTRUM].list_len, args->budget, &dist,

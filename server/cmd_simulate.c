@@ -8,6 +8,7 @@
  * seed and inputs always give the same output.
  */
 #include <stdlib.h>
+#include <time.h>
 
 #include <gsl/gsl_rng.h>
 
@@ -26,8 +27,23 @@ enum {
 };
 
 #define SIMULATE_MAX_SHOTS 1000000UL
-/* Work cap: atoms drawn in one call (shots x atoms). */
+/* Work cap of the command line: atoms drawn in one call (shots x atoms). */
 #define SIMULATE_MAX_DRAWS 1000000000ULL
+/* The cost model of one simulation, in units of about 4 ns on the 2-core
+ * reference machine (Release build):
+ *     work = shots x (atoms + 32) x (levels + 8).
+ * An atom's row insertion visits at most `levels` rows: 21-29 ns per atom
+ * at d = 2, 45 at d = 4, 48 at d = 8 and up to 93 at d = 16 (p_i ∝ 16 − i,
+ * the slowest of seven spectra tried: uniform, linear, quadratic,
+ * geometric 0.9/0.7/0.5, one level dominant; a loop over ss_sampler_draw
+ * timed with CLOCK_PROCESS_CPUTIME_ID), that is 2.9-3.9 ns per unit of
+ * atoms x (levels + 8).  Each shot's diagram and reading cost 1.2-4 µs more
+ * to render (`swapspec simulate` with 1 to 64 atoms, 10^6 shots), which the
+ * 32 extra atoms cover.  Over HTTP a request may do SIMULATE_SERVED_WORK
+ * units (about 2 s), refused up front beyond that. */
+#define SIMULATE_SERVED_WORK 500000000ULL
+/* The deadline is looked at after about this many atoms drawn. */
+#define SIMULATE_CLOCK_ATOMS 65536U
 
 static const cli_option simulate_options[OPT_N] = {
     [OPT_LEVELS] = CLI_OPTION_LEVELS,
@@ -71,13 +87,33 @@ static json_t *simulate_summary(const double *energies, size_t shots,
     return obj;
 }
 
-/* Draws the shots; energies has room for `shots` values. */
+static double simulate_now(void) {
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
+}
+
+/* Draws the shots; energies has room for `shots` values.  Past the
+ * budget's max_seconds (none when budget is NULL or sets none) it stops
+ * with SS_EDEADLINE. */
 static void simulate_draw(ss_sampler *sampler, gsl_rng *rng, unsigned atoms,
                           unsigned levels, const ss_calibration *cal,
-                          size_t shots, double *energies, json_t *diagrams,
-                          ss_error *err) {
+                          size_t shots, const ss_budget *budget,
+                          double *energies, json_t *diagrams, ss_error *err) {
     uint32_t rows[SS_LEVELS_MAX];
+    double limit = budget != NULL ? budget->max_seconds : 0.0;
+    double deadline = limit > 0 ? simulate_now() + limit : 0.0;
+    size_t stride = atoms >= SIMULATE_CLOCK_ATOMS
+                        ? 1
+                        : SIMULATE_CLOCK_ATOMS / atoms; /* shots per look */
     for (size_t k = 0; k < shots && err->code == SS_OK; k++) {
+        if (deadline > 0 && k % stride == 0 && simulate_now() > deadline) {
+            ss_error_set(err, SS_EDEADLINE, "max_seconds",
+                         "the simulation did not finish %zu shots within "
+                         "%.3g s (the request deadline); ask for fewer",
+                         shots, limit);
+            return;
+        }
         if (ss_sampler_shot(sampler, rng, atoms, cal, rows, &energies[k],
                             err) != SS_OK)
             return;
@@ -85,17 +121,28 @@ static void simulate_draw(ss_sampler *sampler, gsl_rng *rng, unsigned atoms,
     }
 }
 
-static ss_status simulate_check(const cli_value *v, double *sorted,
+/* The cost model above; served = the request came over HTTP (the service
+ * passes its budget, the command line none). */
+static ss_status simulate_check(const cli_value *v, int served, double *sorted,
                                 ss_error *err) {
-    unsigned long long draws =
-        (unsigned long long)v[OPT_SHOTS].u * v[OPT_ATOMS].u;
-    if (draws > SIMULATE_MAX_DRAWS)
+    unsigned long long shots = v[OPT_SHOTS].u, atoms = v[OPT_ATOMS].u;
+    unsigned long long levels = v[OPT_LEVELS].u;
+    unsigned long long per_shot = (atoms + 32) * (levels + 8);
+    if (served && shots * per_shot > SIMULATE_SERVED_WORK)
+        return ss_error_set(err, SS_EBUDGET, "shots",
+                            "at most %llu shots of %llu atoms on %llu levels "
+                            "per request (work budget: shots x (atoms + 32) "
+                            "x (levels + 8) <= %llu units of about 4 ns); "
+                            "got %llu",
+                            SIMULATE_SERVED_WORK / per_shot, atoms, levels,
+                            SIMULATE_SERVED_WORK, shots);
+    if (shots * atoms > SIMULATE_MAX_DRAWS)
         return ss_error_set(err, SS_EBUDGET, "shots",
                             "shots x atoms = %llu exceeds the limit of %llu "
                             "simulated atoms per call; ask for fewer shots",
-                            draws, SIMULATE_MAX_DRAWS);
+                            shots * atoms, SIMULATE_MAX_DRAWS);
     return ss_spectrum_validate(v[OPT_SPECTRUM].list, v[OPT_SPECTRUM].list_len,
-                                (unsigned)v[OPT_LEVELS].u, sorted, err);
+                                (unsigned)levels, sorted, err);
 }
 
 static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
@@ -113,7 +160,7 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
     if (cli_calibration_resolve(args->calibration, cal_path, &cal, &cal_source,
                                 err) != SS_OK ||
         ss_calibration_check_atoms(&cal, atoms, err) != SS_OK ||
-        simulate_check(v, sorted, err) != SS_OK)
+        simulate_check(v, args->budget != NULL, sorted, err) != SS_OK)
         return err->code;
     ss_sampler *sampler = NULL;
     if (ss_sampler_alloc(levels, v[OPT_SPECTRUM].list, v[OPT_SPECTRUM].list_len,
@@ -126,8 +173,8 @@ static ss_status simulate_run(const cli_parsed *args, json_t **doc_out,
         ss_error_set(err, SS_ENOMEM, "shots", "no memory for %zu shots", shots);
     if (err->code == SS_OK) {
         gsl_rng_set(rng, seed);
-        simulate_draw(sampler, rng, atoms, levels, &cal, shots, energies,
-                      diagrams, err);
+        simulate_draw(sampler, rng, atoms, levels, &cal, shots, args->budget,
+                      energies, diagrams, err);
         cli_json_put_int(doc, "levels", levels, err);
         cli_json_put_int(doc, "atoms", atoms, err);
         cli_json_put(doc, "spectrum",

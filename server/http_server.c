@@ -82,7 +82,7 @@ void http_settings_default(http_settings *s) {
     s->simulation_shots = 100000;
     s->budget.max_diagrams = 1000000;
     s->budget.max_table_cells = 8000000;
-    s->budget.max_work = 3000000000u; /* about 7 s of likelihood */
+    s->budget.max_work = 1000000000u; /* about 2.3 s of likelihood */
     s->budget.max_seconds = 20;       /* and never more than 20 s */
 }
 

@@ -958,3 +958,31 @@ Test(cli, analyze_bad_requests_name_the_field) {
             tc_fail(TC_ARGS("analyze", path), cases[k].field, TC_EXACT));
     }
 }
+
+/* The command line's compute limits (issue 7).  simulate keeps its own cap
+ * of 10^9 simulated atoms (shots × atoms, server/cmd_simulate.c), checked
+ * before any drawing: 10^6 shots of 1001 atoms (1.001·10^9; about 30 s of
+ * drawing at the measured 30 ns an atom) are refused at once, naming
+ * shots and the product.  The service's tighter per-request limits are not
+ * applied here: the prediction of 100 000 atoms on 2 levels with top 0
+ * lists 50 001 energy levels (floor(n/2) + 1 diagrams with at most two
+ * rows, OEIS A026820, each its own level since c is strictly monotone in
+ * the second row, domain.md §2) and as many diagrams under them, 100 002
+ * entries, over the 100 000 a served document may hold. */
+Test(cli, compute_limits_of_the_command_line) {
+    json_t *e =
+        tc_fail(TC_ARGS("simulate", "--levels", "3", "--atoms", "1001",
+                        "--spectrum", "0.6,0.3,0.1", "--shots", "1000000"),
+                "shots", TC_EXACT);
+    const char *msg = json_string_value(tc_get(e, "error"));
+    cr_expect(strstr(msg, "1001000000") && strstr(msg, "1000000000"),
+              "message: %s", msg);
+    cr_expect(strcmp(json_string_value(tc_get(e, "code")),
+                     "work-budget-exceeded") == 0);
+    json_decref(e);
+    json_t *doc = tc_ok(TC_ARGS("predict", "--levels", "2", "--atoms", "100000",
+                                "--spectrum", "0.5,0.5", "--top", "0"));
+    cr_expect(tc_int(doc, "total_diagrams") == 50001);
+    cr_expect(json_array_size(tc_get(doc, "energy_levels")) == 50001);
+    json_decref(doc);
+}

@@ -304,14 +304,15 @@ Test(http, analyses_are_stored_listed_and_idempotent, .init = hd_setup,
     cr_expect(pages == 3);
 }
 
-/* Four levels from means and variances: every bootstrap replicate solves
- * for the maximum-entropy spectrum, so 10 000 of them take a while.  The
- * run is p = (0.4, 0.3, 0.2), 0.1) at n = 12: mean content 66·0.3 and the
- * exact variance 73.26 (test_content_moments checks that value). */
+/* Two levels from a mean and a variance: every bootstrap replicate draws
+ * the 20 001 content levels of 40 000 atoms, so 4500 of them (within the
+ * bootstrap's work budget of 4537 replicates here) take a while.  The run
+ * is p = (0.6, 0.4) at n = 40 000: the exact mean content C(n,2)·P2 and
+ * variance of domain.md §2 (P2 = 0.52, P3 = 0.28). */
 #define SLOW_BODY                                                              \
-    "{\"levels\":4,\"bootstrap\":10000,\"runs\":[{\"atoms\":12,"               \
-    "\"shots\":1000,\"mean_energy\":19.8,\"energy_variance\":73.26}],"         \
-    "\"method\":\"moments\"}"
+    "{\"levels\":2,\"bootstrap\":4500,\"runs\":[{\"atoms\":40000,"             \
+    "\"shots\":1000,\"mean_energy\":415989600,"                                \
+    "\"energy_variance\":614937586176}],\"method\":\"moments\"}"
 
 typedef struct {
     int port;
@@ -703,5 +704,196 @@ Test(http, faults_are_answered_and_survived, .init = hd_setup,
     cr_expect(n <= 0 || strncmp(buf, "HTTP/1.1 408", 12) == 0,
               "stalled client got %zd bytes", n);
     close(fd);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+}
+
+/* Compute limits (issue 7): every request over the work budget of its
+ * route is refused up front with 422 work-budget-exceeded, the pointer of
+ * the field to change and the limit ("at most ...; got ..."), and the next
+ * good request on the same route is served.  The limits and their cost
+ * models are stated beside the code (server/cmd_simulate.c,
+ * cmd_predict.c, cmd_diagrams.c, core/src/internal.h); the numbers here
+ * are worked from those formulas by hand:
+ * - simulations: shots × (atoms + 32) × (levels + 8) ≤ 5·10^8, so 10 000
+ *   shots of 100 000 atoms on 16 levels (10^9 atoms, about 34 s of drawing
+ *   before) are refused, and at 100 000 atoms on 2 levels at most
+ *   5·10^8 / (100 032 · 10) = 499.8, i.e. 499 shots are allowed;
+ * - predictions: at most 100 000 entries; 3461 atoms on 3 levels have
+ *   999 941 diagrams, nearly all with distinct contents (the span of
+ *   contents is ~6·10^6), and d = 2 has one energy level per diagram
+ *   (domain.md §2: c strictly monotone in the second row) and
+ *   floor(n/2) + 1 diagrams (OEIS A026820), i.e. 2·(floor(n/2) + 1)
+ *   entries with top 0: 100 000 atoms make 100 002 (refused), 99 999 make
+ *   100 000 (served);
+ * - candidates: at most 100 000 listed diagrams; 260 atoms on 4 levels
+ *   have 129 228 diagrams (OEIS A026820), all listed without a selection
+ *   or with a window of ±3·10^6 (their degenerate groups come on top);
+ * - analyses: the bootstrap of one run of 12 atoms on 4 levels allows
+ *   1460 replicates (test_inversion's cost_model_boundaries); the runs'
+ *   Schur tables together at most max_table_cells = 8·10^6 cells, half
+ *   that with a bootstrap: 100 runs of 100 000 atoms on 2 levels need
+ *   100 × 100 001 (cells(n, 2) = n + 1), and one run of 83 atoms on 9
+ *   levels with a bootstrap alone more than 4·10^6 (its table has
+ *   6.6·10^6 cells, within the 8·10^6 of a single table). */
+#define U16                                                                    \
+    "[0.0625,0.0625,0.0625,0.0625,0.0625,0.0625,0.0625,0.0625,0.0625,"         \
+    "0.0625,0.0625,0.0625,0.0625,0.0625,0.0625,0.0625]"
+
+static const struct {
+    const char *path, *body, *pointer, *detail;
+} over_budget[] = {
+    {"/v1/simulations",
+     "{\"levels\":16,\"atoms\":100000,\"spectrum\":" U16 ",\"shots\":10000}",
+     "/shots", "at most 208 shots"},
+    {"/v1/simulations",
+     "{\"levels\":2,\"atoms\":100000,\"spectrum\":[0.5,0.5],\"shots\":500}",
+     "/shots", "at most 499 shots"},
+    {"/v1/predictions",
+     "{\"levels\":3,\"atoms\":3461,\"spectrum\":[0.6,0.3,0.1]}", "/atoms",
+     "at most 100000 entries"},
+    {"/v1/predictions",
+     "{\"levels\":16,\"atoms\":63,\"spectrum\":" U16 ",\"top\":100000}", "/top",
+     "at most 100000 entries"},
+    {"/v1/predictions",
+     "{\"levels\":2,\"atoms\":100000,\"spectrum\":[0.5,0.5],\"top\":0}",
+     "/atoms", "got up to 100002"},
+    {"/v1/candidates", "{\"levels\":4,\"atoms\":260}", "/atoms",
+     "at most 100000 listed diagrams"},
+    {"/v1/candidates",
+     "{\"levels\":4,\"atoms\":260,\"energy\":0,\"energy_sd\":1e6}",
+     "/energy_sd", "at most 100000 listed diagrams"},
+    {"/v1/analyses",
+     "{\"levels\":4,\"bootstrap\":10000,\"runs\":[{\"atoms\":12,\"shots\":"
+     "1000,\"mean_energy\":19.8,\"energy_variance\":73.26}],\"method\":"
+     "\"moments\"}",
+     "/bootstrap", "at most 1460 bootstrap replicates"},
+    {"/v1/analyses",
+     "{\"levels\":9,\"bootstrap\":10,\"runs\":[{\"atoms\":83,\"shots\":500,"
+     "\"mean_energy\":459.405,\"energy_variance\":5008.620475}],"
+     "\"method\":\"moments\"}",
+     "/runs/0/atoms", "at most 4000000 Schur-table cells"},
+    {"/v1/analyses", NULL, "/runs", "got 10000100"}, /* built below */
+};
+
+/* A good request per route, served after each refusal. */
+static const char *good_body(const char *path) {
+    if (strcmp(path, "/v1/predictions") == 0)
+        return PREDICT;
+    if (strcmp(path, "/v1/candidates") == 0)
+        return "{\"levels\":3,\"atoms\":6,\"content\":3}";
+    if (strcmp(path, "/v1/simulations") == 0)
+        return "{\"levels\":3,\"atoms\":8,\"spectrum\":[0.5,0.3,0.2],"
+               "\"shots\":50}";
+    return ANALYSIS;
+}
+
+/* 100 summary runs of 100 000 atoms on 2 levels at p = (0.6, 0.4): the
+ * exact mean and variance of domain.md §2 (as in the 9-level row, at
+ * p = (0.2, 0.2, 0.1 ×5, 0.05 ×2)).  Free the result. */
+static char *many_big_runs(void) {
+    static const char run[] = "{\"atoms\":100000,\"shots\":100,\"mean_energy\":"
+                              "2599974000,\"energy_variance\":9603359965184}";
+    size_t cap = 100 * sizeof run + 128, used = 0;
+    char *body = malloc(cap);
+    used += (size_t)snprintf(body, cap, "{\"levels\":2,\"runs\":[");
+    for (int k = 0; k < 100; k++)
+        used += (size_t)snprintf(body + used, cap - used, "%s%s", k ? "," : "",
+                                 run);
+    snprintf(body + used, cap - used, "],\"method\":\"moments\"}");
+    return body;
+}
+
+Test(http, compute_limits_are_refused_up_front, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 120) {
+    cr_assert(hh_start(&hd, NULL) == 0);
+    hh_response r;
+    char *runs = many_big_runs();
+    for (size_t k = 0; k < sizeof over_budget / sizeof over_budget[0]; k++) {
+        const char *path = over_budget[k].path;
+        const char *body = over_budget[k].body ? over_budget[k].body : runs;
+        hh_request(hd.port, "POST", path, NULL, "application/json", NULL, body,
+                   &r);
+        expect_problem(&r, 422, "work-budget-exceeded", over_budget[k].pointer);
+        const char *detail =
+            json_string_value(json_object_get(r.json, "detail"));
+        cr_expect(detail && strstr(detail, over_budget[k].detail) &&
+                      strstr(detail, "got"),
+                  "row %zu: detail '%s', expected '%s ... got ...'", k,
+                  detail ? detail : "(none)", over_budget[k].detail);
+        hh_free(&r);
+        hh_request(hd.port, "POST", path, NULL, "application/json", NULL,
+                   good_body(path), &r);
+        cr_expect(r.status == 200 || r.status == 201,
+                  "good request on %s after row %zu: %d %s", path, k, r.status,
+                  r.body);
+        hh_free(&r);
+    }
+    free(runs);
+    /* the largest prediction of 2 levels the entry limit allows: 99 999
+     * atoms, 50 000 diagrams and as many levels, top 0: 100 000 entries */
+    hh_request(hd.port, "POST", "/v1/predictions", NULL, "application/json",
+               NULL,
+               "{\"levels\":2,\"atoms\":99999,\"spectrum\":[0.5,0.5],"
+               "\"top\":0}",
+               &r);
+    cr_assert(r.status == 200, "%d %.300s", r.status, r.body);
+    cr_expect(json_integer_value(json_object_get(r.json, "total_diagrams")) ==
+              50000);
+    cr_expect(json_array_size(json_object_get(r.json, "energy_levels")) ==
+              50000);
+    hh_free(&r);
+    cr_expect(hh_stop(&hd, SIGTERM) == 0);
+}
+
+/* The per-request deadline (max_seconds, here 1 s) turns a slow
+ * computation into 503 deadline-exceeded, and the worker is free for the
+ * next request.  The simulation below is within the work budget (208 of 208
+ * shots; about 1.3 s on the 2-core reference machine, Release build) and
+ * the daemon is frozen (SIGSTOP) for 1.5 s while it draws — as a machine
+ * far busier than the cost model assumes would — so the outcome does not
+ * depend on the machine's speed: after SIGCONT the next look at the clock
+ * is past the deadline.  (Frozen before the drawing started, the request
+ * would still run past 1 s by itself on the reference machine, and far
+ * past it in the sanitizer build.) */
+typedef struct {
+    int port;
+    hh_response r;
+} hh_pending;
+
+static void *post_slow_simulation(void *arg) {
+    hh_pending *s = arg;
+    hh_request(s->port, "POST", "/v1/simulations", NULL, "application/json",
+               NULL,
+               "{\"levels\":16,\"atoms\":100000,\"spectrum\":[0.1,0.1,0.1,0.1,"
+               "0.075,0.075,0.075,0.075,0.05,0.05,0.05,0.05,0.025,0.025,0.025,"
+               "0.025],\"shots\":208}",
+               &s->r);
+    return NULL;
+}
+
+Test(http, deadline_turns_a_slow_request_into_503, .init = hd_setup,
+     .fini = hd_teardown, .timeout = 120) {
+    char conf[256];
+    snprintf(conf, sizeof conf, "%s/swapspec.conf", hd.dir);
+    hh_write(conf, "max_seconds = 1\n");
+    const char *extra[] = {"--config", conf, NULL};
+    cr_assert(hh_start(&hd, extra) == 0);
+    hh_pending s = {hd.port, {0}};
+    pthread_t t;
+    pthread_create(&t, NULL, post_slow_simulation, &s);
+    nanosleep(&(struct timespec){0, 100 * 1000 * 1000}, NULL);
+    kill(hd.pid, SIGSTOP);
+    nanosleep(&(struct timespec){1, 500 * 1000 * 1000}, NULL);
+    kill(hd.pid, SIGCONT);
+    pthread_join(t, NULL);
+    expect_problem(&s.r, 503, "deadline-exceeded", "/max_seconds");
+    const char *detail = json_string_value(json_object_get(s.r.json, "detail"));
+    cr_expect(detail && strstr(detail, "within 1 s"), "detail: %s", detail);
+    hh_free(&s.r);
+    hh_response r;
+    hh_request(hd.port, "POST", "/v1/simulations", NULL, "application/json",
+               NULL, good_body("/v1/simulations"), &r);
+    cr_expect(r.status == 200, "the next simulation: %d %s", r.status, r.body);
+    hh_free(&r);
     cr_expect(hh_stop(&hd, SIGTERM) == 0);
 }

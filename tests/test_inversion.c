@@ -949,3 +949,74 @@ Test(inversion, naive_is_a_diagram_over_n) {
     ss_diagram_set_free(set);
     ss_analysis_free(a);
 }
+
+/* ss_analysis_run that must refuse req with SS_EBUDGET naming field. */
+static void expect_over_budget(const ss_analysis_request *req,
+                               const char *field, const char *what) {
+    ss_error err;
+    ss_error_clear(&err);
+    ss_analysis *a = NULL;
+    ss_status st = ss_analysis_run(req, &a, &err);
+    cr_assert(st == SS_EBUDGET && strcmp(err.field, field) == 0,
+              "%s: %s naming \"%s\", expected work-budget-exceeded naming "
+              "\"%s\" (%s)",
+              what, ss_status_name(st), err.field, field, err.message);
+    cr_assert(strstr(err.message, "at most") != NULL, "%s: %s", what,
+              err.message);
+    cr_assert_null(a);
+}
+
+/* The analysis's cost model (core/src/internal.h, budget.c), held at its
+ * boundaries; every number is worked by hand from the model's formulas,
+ * not read from the program:
+ * - Schur-table cells.  For d = 2, cells(n, 2) = n + 1 (the partitions of
+ *   at most n boxes with at most one row: 0..n), so with max_table_cells
+ *   100, runs of 40 and 50 atoms need 41 + 51 = 92 cells (accepted), one
+ *   more of 10 atoms makes 103 (refused, naming "runs"), one run of 100
+ *   atoms alone needs 101 (naming "runs[0].atoms"); with a bootstrap the
+ *   cells count twice, so 40 and 10 atoms (41 + 11 = 52 > 100/2) are over.
+ * - Bootstrap replicates.  One run of 12 atoms on 4 levels costs
+ *   3200·(4² + 16) + 256 + L units a replicate, L = min(34, 66 + 6 + 1) =
+ *   34 (34 diagrams of 12 with at most 4 rows, OEIS A026820; contents from
+ *   −6 for (3,3,3,3) to C(12,2) = 66 for (12)): 102 690 units, and
+ *   1.5·10^8 / 102 690 = 1460.7, so 1460 replicates run and 1461 are
+ *   refused before any work.  Exact. */
+Test(inversion, cost_model_boundaries) {
+    const double p2[2] = {0.7, 0.3};
+    ss_calibration cal = ss_calibration_default();
+    ss_run runs[3] = {iv_exact_run(40, 200, p2, 2, &cal),
+                      iv_exact_run(50, 200, p2, 2, &cal),
+                      iv_exact_run(10, 200, p2, 2, &cal)};
+    ss_analysis_request req = iv_request(2, runs, 2, SS_METHOD_MOMENTS);
+    req.budget.max_table_cells = 100;
+    ss_analysis_free(iv_analyse(&req, "92 cells of 100"));
+    req.run_count = 3;
+    expect_over_budget(&req, "runs", "103 cells of 100");
+    ss_run big = iv_exact_run(100, 200, p2, 2, &cal);
+    req.runs = &big;
+    req.run_count = 1;
+    expect_over_budget(&req, "runs[0].atoms", "one run of 101 cells");
+    ss_run pair[2] = {runs[0], runs[2]}; /* 40 and 10 atoms */
+    req.runs = pair;
+    req.run_count = 2;
+    ss_analysis_free(iv_analyse(&req, "52 cells of 100"));
+    req.bootstrap = 10;
+    expect_over_budget(&req, "runs", "52 cells of 100 / 2 (bootstrap)");
+
+    const double p4[4] = {0.4, 0.3, 0.2, 0.1};
+    ss_run one = iv_exact_run(12, 1000, p4, 4, &cal);
+    req = iv_request(4, &one, 1, SS_METHOD_MOMENTS);
+    req.bootstrap = 1461;
+    expect_over_budget(&req, "bootstrap", "1461 replicates");
+    ss_error err;
+    ss_error_clear(&err);
+    ss_analysis *a = NULL;
+    ss_analysis_run(&req, &a, &err);
+    cr_assert(strstr(err.message, "at most 1460 bootstrap replicates") &&
+                  strstr(err.message, "got 1461"),
+              "%s", err.message);
+    req.bootstrap = 1460;
+    a = iv_analyse(&req, "1460 replicates");
+    cr_assert_eq(a->diagnostics.bootstrap_replicates, 1460u);
+    ss_analysis_free(a);
+}

@@ -110,7 +110,8 @@ ss_status ss_error_set(ss_error *err, ss_status code, const char *field,
  * enumerated, so an over-budget call fails fast with SS_EBUDGET naming the
  * limit.  max_diagrams bounds the number of Young diagrams produced;
  * max_table_cells bounds the cells of the Schur-polynomial table (the memory
- * driver: 16 bytes per cell, two tables alive at once). */
+ * driver: 16 bytes per cell, two tables alive at once); for an analysis,
+ * the cells of all its runs' tables together, twice with a bootstrap. */
 typedef struct {
     uint64_t max_diagrams;
     uint64_t max_table_cells;

@@ -26,7 +26,6 @@
  * mixes diagrams with weight ≈ (s·√C(n,2))².  Our stated criterion: flag
  * when that ratio reaches 0.1 (≈ 1 % mixing). */
 #define SS__SYMMETRY_RATIO 0.1
-#define SS__AUTO_BOOTSTRAP 200
 
 static double ss__sq(double x) { return x * x; }
 
@@ -722,7 +721,10 @@ static ss_status ss__candidates_all(ss_analysis *a,
 
 ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
                           ss_error *err) {
+    ss__cost cost;
     ss_status st = ss__request_validate(req, err);
+    if (st == SS_OK) /* refused before any work when over the budget */
+        st = ss__analysis_cost(req, &cost, err);
     if (st != SS_OK)
         return st;
     unsigned d = req->levels;
@@ -778,8 +780,10 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         int singular = !isfinite(a->stderr_[0]);
         unsigned boots = req->bootstrap;
         if (singular && boots < SS__AUTO_BOOTSTRAP &&
-            method == SS_METHOD_MOMENTS)
-            boots = SS__AUTO_BOOTSTRAP;
+            method == SS_METHOD_MOMENTS) { /* as many as the budget allows */
+            unsigned afford = ss__bootstrap_auto(&cost, req);
+            boots = afford > boots ? afford : boots;
+        }
         if (st == SS_OK && boots > 0 && method == SS_METHOD_MOMENTS) {
             double sd[SS_LEVELS_MAX], qlo[SS_LEVELS_MAX], qhi[SS_LEVELS_MAX];
             double sdp2 = 0;
@@ -812,6 +816,22 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         }
         if (st != SS_OK)
             goto done;
+        /* the projection onto the simplex can leave a zero eigenvalue a
+         * rounding below zero (fuzz finding: -9.99e-16, which the exact law
+         * of the candidates then refused as a spectrum): clamp such an
+         * entry to zero and restore the sum */
+        double total = 0;
+        int clamped = 0;
+        for (unsigned i = 0; i < a->levels; i++) {
+            if (a->values[i] < 0 && a->values[i] > -1e-12) {
+                a->values[i] = 0;
+                clamped = 1;
+            }
+            total += a->values[i];
+        }
+        if (clamped && total > 0)
+            for (unsigned i = 0; i < a->levels; i++)
+                a->values[i] /= total;
         /* the root and projection maps can leave two equal eigenvalues one
          * rounding apart in the wrong order: restore the order */
         for (unsigned i = 0; i + 1 < a->levels; i++)
@@ -823,10 +843,12 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         ss__set_intervals(a, zc);
         /* every interval holds its point: the likelihood's point with the
          * moments' region (rank-deficient fits), or a projected point next
-         * to a sampled region, can fall just outside it */
+         * to a sampled region, can fall just outside it; and every
+         * interval stays in [0, 1] (a profile bound can land a rounding
+         * below zero: the same fuzz finding) */
         for (unsigned i = 0; i < a->levels; i++) {
-            a->lower[i] = fmin(a->lower[i], a->values[i]);
-            a->upper[i] = fmax(a->upper[i], a->values[i]);
+            a->lower[i] = fmax(0.0, fmin(a->lower[i], a->values[i]));
+            a->upper[i] = fmin(1.0, fmax(a->upper[i], a->values[i]));
         }
         ss__flags_runs(a, req, rs, zc);
     }

@@ -1,10 +1,14 @@
 /*
- * budget.c — the clock behind ss_budget.max_seconds: deadlines of the
- * iterative phases (likelihood fit, bootstrap) on CLOCK_MONOTONIC, which
- * no change of the wall clock moves.  Owns nothing.
+ * budget.c — the work budget of one analysis: the clock behind
+ * ss_budget.max_seconds (deadlines of the iterative phases on
+ * CLOCK_MONOTONIC, which no change of the wall clock moves), and the cost
+ * model that refuses an over-budget analysis before any work: the cells of
+ * the runs' Schur tables, and the work of a parametric bootstrap.  Owns
+ * nothing beyond the scratch table of one estimate.
  */
 #include "internal.h"
 
+#include <stdio.h>
 #include <time.h>
 
 double ss__now(void) {
@@ -17,4 +21,122 @@ double ss__deadline(const ss_budget *budget) {
     if (budget == NULL || !(budget->max_seconds > 0))
         return 0.0;
     return ss__now() + budget->max_seconds;
+}
+
+/* Content sum of the most balanced diagram of `atoms` with at most `levels`
+ * rows (rows of q + 1 boxes, then rows of q): the smallest content there
+ * is, because moving a box down to a shorter row lowers the content. */
+int64_t ss__content_min(unsigned atoms, unsigned levels) {
+    unsigned rows = atoms < levels ? atoms : levels;
+    if (rows == 0)
+        return 0;
+    int64_t q = atoms / rows, extra = atoms % rows, c = 0;
+    for (int64_t i = 0; i < (int64_t)rows; i++) {
+        int64_t l = q + (i < extra);
+        c += l * (l - 1) / 2 - i * l;
+    }
+    return c;
+}
+
+uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
+                                  uint64_t diagrams) {
+    int64_t n = atoms;
+    uint64_t span =
+        (uint64_t)(n * (n - 1) / 2 - ss__content_min(atoms, levels) + 1);
+    return span < diagrams ? span : diagrams;
+}
+
+uint64_t ss__bootstrap_fixed_units(unsigned levels) {
+    return levels <= 3
+               ? SS__BOOT_UNITS_CLOSED
+               : SS__BOOT_UNITS_PER_LEVEL2 * ((uint64_t)levels * levels + 16u);
+}
+
+/* The method that will run: auto is the likelihood when a run has per-shot
+ * energies (ss_analysis_run). */
+static int ss__runs_bootstrap(const ss_analysis_request *req) {
+    ss_method m = req->method;
+    if (m == SS_METHOD_AUTO) {
+        m = SS_METHOD_MOMENTS;
+        for (size_t r = 0; r < req->run_count; r++)
+            if (req->runs[r].energies != NULL)
+                m = SS_METHOD_LIKELIHOOD;
+    }
+    return m == SS_METHOD_MOMENTS;
+}
+
+ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
+                            ss_error *err) {
+    unsigned d = req->levels, nmax = 0;
+    for (size_t r = 0; r < req->run_count; r++)
+        nmax = req->runs[r].atoms > nmax ? req->runs[r].atoms : nmax;
+    /* one table gives every run's counts: C_i(B) = diagrams with at most i
+     * rows and size <= B, so cells(n, d) = C_{d−1}(n) (the Schur table of
+     * ss_diagram_table_cells) and count(n, d) = C_d(n) − C_d(n − 1) */
+    ss__rank_table t;
+    if (ss__rank_table_init(&t, d, nmax) != SS_OK)
+        return ss_error_set(err, SS_ENOMEM, "", NULL);
+    ss__cost c = {0, ss__bootstrap_fixed_units(d), 0};
+    size_t biggest = 0;
+    uint64_t biggest_cells = 0;
+    for (size_t r = 0; r < req->run_count; r++) {
+        unsigned n = req->runs[r].atoms;
+        uint64_t cells = ss__rank_cum(&t, d - 1, (long)n);
+        uint64_t upto = ss__rank_cum(&t, d, (long)n);
+        uint64_t count = upto == UINT64_MAX
+                             ? UINT64_MAX /* saturated: beyond any budget */
+                             : upto - ss__rank_cum(&t, d, (long)n - 1);
+        c.table_cells = ss__sat_add(c.table_cells, cells);
+        if (cells > biggest_cells) {
+            biggest_cells = cells;
+            biggest = r;
+        }
+        c.replicate_units = ss__sat_add(
+            c.replicate_units,
+            SS__BOOT_UNITS_PER_RUN + ss__content_levels_bound(n, d, count));
+    }
+    ss__rank_table_release(&t);
+    c.bootstrap = ss__runs_bootstrap(req) ? req->bootstrap : 0;
+
+    /* every run's exact law once (candidates, likelihood), once more for
+     * the bootstrap at the estimate */
+    uint64_t phases = c.bootstrap > 0 ? 2 : 1;
+    uint64_t cap = req->budget.max_table_cells;
+    if (cap == 0)
+        cap = ss_budget_default().max_table_cells;
+    if (c.table_cells > cap / phases) {
+        char field[48] = "runs";
+        if (biggest_cells > cap / phases)
+            snprintf(field, sizeof field, "runs[%zu].atoms", biggest);
+        return ss_error_set(
+            err, SS_EBUDGET, field,
+            "at most %llu Schur-table cells for the exact laws of all runs "
+            "together%s (work budget max_table_cells); got %s%llu",
+            (unsigned long long)(cap / phases),
+            phases > 1 ? ", half the budget with a bootstrap" : "",
+            c.table_cells == UINT64_MAX ? "more than " : "",
+            (unsigned long long)(c.table_cells -
+                                 (c.table_cells == UINT64_MAX)));
+    }
+    /* bootstrap × units > max, without overflow */
+    if (c.bootstrap > 0 && c.replicate_units > SS__BOOT_UNITS_MAX / c.bootstrap)
+        return ss_error_set(
+            err, SS_EBUDGET, "bootstrap",
+            "at most %llu bootstrap replicates for these runs (%llu work units "
+            "each, about 20 ns per unit; at most %llu per request); got %u",
+            (unsigned long long)(SS__BOOT_UNITS_MAX / c.replicate_units),
+            (unsigned long long)c.replicate_units,
+            (unsigned long long)SS__BOOT_UNITS_MAX, c.bootstrap);
+    *out = c;
+    return SS_OK;
+}
+
+unsigned ss__bootstrap_auto(const ss__cost *c, const ss_analysis_request *req) {
+    uint64_t cap = req->budget.max_table_cells;
+    if (cap == 0)
+        cap = ss_budget_default().max_table_cells;
+    uint64_t afford = SS__BOOT_UNITS_MAX / c->replicate_units;
+    if (c->table_cells > cap / 2 || afford < SS__AUTO_BOOTSTRAP_MIN)
+        return 0; /* the error bars stay those of the delta method */
+    return afford < SS__AUTO_BOOTSTRAP ? (unsigned)afford : SS__AUTO_BOOTSTRAP;
 }

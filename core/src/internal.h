@@ -54,6 +54,61 @@ static inline uint64_t ss__rank_of(const ss__rank_table *t, const long *a,
 double ss__now(void);
 double ss__deadline(const ss_budget *budget);
 
+/* The cost model of an analysis, estimated from the request alone before
+ * any work (budget.c).
+ *
+ * Exact laws: every run's Schur table is built once (candidates, the
+ * likelihood's start) and once more for a bootstrap at the estimate; the
+ * cells of all runs together, twice with a bootstrap, must stay within
+ * budget.max_table_cells (a table fills at about 150–300 ns per cell on the
+ * 2-core reference machine, Release build: 1.2 s for (n, d) = (83, 9)).
+ *
+ * Bootstrap: one unit is about 20 ns, the cost of one content level of the
+ * multinomial draw of one run (16–19 ns measured, Release, at (n, d) =
+ * (10 000, 2) and (3461, 3)).  A replicate costs
+ *     fixed(d) + Σ_runs (SS__BOOT_UNITS_PER_RUN + L(n_r, d)),
+ * L = number of distinct contents ≤ min(diagrams, C(n,2) − c_min + 1), the
+ * per-run part being the refit's Gauss–Newton steps and noise draws (0.2–5
+ * µs measured with 1000 runs).  fixed(d) is the spectrum of the replicate's
+ * moments: closed forms for d ≤ 3 (1.3–18 µs, but 212 µs at the uniform
+ * d = 2 spectrum, where the point falls on the boundary), the maximum-
+ * entropy solutions for d ≥ 4, measured worst over seven spectra (uniform,
+ * linear, geometric 0.9/0.7/0.5, one level 3× and 30× the others) at 1.6,
+ * 2.5, 4.2, 10 and 15 ms per replicate for d = 4, 6, 8, 12, 16, which
+ * 3200·(d² + 16) units bounds.  Timed with CLOCK_PROCESS_CPUTIME_ID around
+ * ss_analysis_run with and without the bootstrap.  A request over
+ * SS__BOOT_UNITS_MAX (about 3 s) is refused with SS_EBUDGET naming
+ * "bootstrap"; the automatic bootstrap of a singular fit draws what fits. */
+#define SS__BOOT_UNITS_MAX 150000000ull
+#define SS__BOOT_UNITS_CLOSED 12800ull
+#define SS__BOOT_UNITS_PER_LEVEL2 3200ull
+#define SS__BOOT_UNITS_PER_RUN 256ull
+/* Replicates of the automatic bootstrap (a singular root map), and the
+ * fewest worth drawing for a standard error (Efron & Tibshirani, An
+ * Introduction to the Bootstrap, §6.4: 25 to 200 [from memory]). */
+#define SS__AUTO_BOOTSTRAP 200u
+#define SS__AUTO_BOOTSTRAP_MIN 25u
+typedef struct {
+    uint64_t table_cells;     /* Σ_runs cells(n_r, d), saturating */
+    uint64_t replicate_units; /* one bootstrap replicate */
+    unsigned bootstrap;       /* replicates the request will draw */
+} ss__cost;
+/* Smallest content of a diagram of atoms with at most levels rows, and the
+ * bound L above (diagrams = the number of diagrams, or UINT64_MAX). */
+int64_t ss__content_min(unsigned atoms, unsigned levels);
+uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
+                                  uint64_t diagrams);
+uint64_t ss__bootstrap_fixed_units(unsigned levels);
+/* Estimates the cost of a validated request into *out; SS_EBUDGET naming
+ * "runs" (or "runs[i].atoms" when one run alone is too big) or
+ * "bootstrap", with the limit, when it is over; SS_ENOMEM. */
+ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
+                            ss_error *err);
+/* Replicates the automatic bootstrap may draw: SS__AUTO_BOOTSTRAP, fewer
+ * when the work budget allows fewer, 0 when it allows fewer than
+ * SS__AUTO_BOOTSTRAP_MIN or the tables would not fit twice. */
+unsigned ss__bootstrap_auto(const ss__cost *c, const ss_analysis_request *req);
+
 /* qsort comparator: doubles in decreasing order (spectrum.c). */
 int ss__cmp_double_desc(const void *a, const void *b);
 

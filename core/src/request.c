@@ -11,9 +11,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Bootstrap work cap: replicates × shots drawn (about 5 s of drawing). */
-#define SS__BOOTSTRAP_DRAWS_MAX 500000000.0
-
 static const char *const ss__method_names[] = {"auto", "moments", "likelihood",
                                                "diagrams"};
 
@@ -227,11 +224,7 @@ ss_status ss__request_validate(const ss_analysis_request *req, ss_error *err) {
         return ss_error_set(err, SS_EINVAL, "bootstrap",
                             "at most %d bootstrap replicates, got %u",
                             SS_BOOTSTRAP_MAX, req->bootstrap);
-    if ((double)req->bootstrap * total > SS__BOOTSTRAP_DRAWS_MAX)
-        return ss_error_set(err, SS_EBUDGET, "bootstrap",
-                            "%u replicates of %.0f shots exceed the work "
-                            "budget of %.0f simulated shots",
-                            req->bootstrap, total, SS__BOOTSTRAP_DRAWS_MAX);
+    /* the work of the tables and the bootstrap: ss__analysis_cost */
     return SS_OK;
 }
 
