@@ -719,6 +719,25 @@ static ss_status ss__candidates_all(ss_analysis *a,
     return st;
 }
 
+/* The projection onto the simplex can leave a zero eigenvalue a rounding
+ * below zero (fuzz findings: -9.99e-16 and -1.22e-15, which the exact law
+ * of the candidates and of the bootstrap then refused as a spectrum):
+ * such an entry becomes zero and the sum is restored. */
+static void ss__snap_to_simplex(double *v, unsigned d) {
+    double total = 0;
+    int clamped = 0;
+    for (unsigned i = 0; i < d; i++) {
+        if (v[i] < 0 && v[i] > -1e-12) {
+            v[i] = 0;
+            clamped = 1;
+        }
+        total += v[i];
+    }
+    if (clamped && total > 0)
+        for (unsigned i = 0; i < d; i++)
+            v[i] /= total;
+}
+
 ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
                           ss_error *err) {
     ss__cost cost;
@@ -768,6 +787,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         if (fit.dof > 0 && isfinite(fit.chi2) && fit.chi2 >= 0)
             a->diagnostics.p_value = gsl_cdf_chisq_Q(fit.chi2, fit.dof);
         ss__estimate_moments(a, req, rs, &fit);
+        ss__snap_to_simplex(a->values, d); /* before the bootstrap uses it */
         /* d = 3: profile intervals follow the curved root map (the delta
          * method linearises it and fails near equal eigenvalues) */
         if (st == SS_OK && method == SS_METHOD_MOMENTS && d == 3 &&
@@ -816,22 +836,7 @@ ss_status ss_analysis_run(const ss_analysis_request *req, ss_analysis **out,
         }
         if (st != SS_OK)
             goto done;
-        /* the projection onto the simplex can leave a zero eigenvalue a
-         * rounding below zero (fuzz finding: -9.99e-16, which the exact law
-         * of the candidates then refused as a spectrum): clamp such an
-         * entry to zero and restore the sum */
-        double total = 0;
-        int clamped = 0;
-        for (unsigned i = 0; i < a->levels; i++) {
-            if (a->values[i] < 0 && a->values[i] > -1e-12) {
-                a->values[i] = 0;
-                clamped = 1;
-            }
-            total += a->values[i];
-        }
-        if (clamped && total > 0)
-            for (unsigned i = 0; i < a->levels; i++)
-                a->values[i] /= total;
+        ss__snap_to_simplex(a->values, a->levels); /* likelihood too */
         /* the root and projection maps can leave two equal eigenvalues one
          * rounding apart in the wrong order: restore the order */
         for (unsigned i = 0; i + 1 < a->levels; i++)
