@@ -77,7 +77,11 @@ ss_status ss_calibration_check_atoms(const ss_calibration *cal, unsigned atoms,
     double pairs = ss__pairs(atoms);
     double base = cal->offset + cal->pair_shift * pairs;
     double reach = fabs(cal->exchange) * pairs + 40.0 * cal->noise_sd;
-    if (!isfinite(base) || !isfinite(reach) || !isfinite(fabs(base) + reach))
+    /* reach² bounds the energy variance, exchange²·Var(content) +
+     * noise_sd², which must be a number too (fuzz finding: noise_sd
+     * 6.1e207 made the predicted variance infinite) */
+    if (!isfinite(base) || !isfinite(reach) || !isfinite(fabs(base) + reach) ||
+        !isfinite(reach * reach))
         return ss_error_set(err, SS_EINVAL, "calibration",
                             "with %u atoms this calibration gives energies "
                             "beyond the range of numbers (offset + "

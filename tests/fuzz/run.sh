@@ -23,6 +23,12 @@
 # regression test (tests/fuzz/regressions/<target>/) is printed.
 #
 # FUZZ_TARGETS   targets to run (default: all four)
+# FUZZ_FRESH     fail (default) or report: what a failure on an input found
+#                during this run (after libFuzzer's INITED line, i.e. after
+#                the seeds, the saved regressions and earlier finds all ran
+#                clean) does.  `report` prints it as a NEW FINDING with the
+#                command that keeps it, and the run still passes; a failure
+#                while replaying those inputs always fails the run.
 # FUZZ_PARALLEL  targets run at once (default 1; CI uses 2 on its 2 cores)
 # FUZZ_CC        the compiler (default clang; a wrapper that adds flags)
 # JOBS           build parallelism (default 2)
@@ -37,6 +43,7 @@ PARALLEL=${FUZZ_PARALLEL:-1}
 TIMEOUT=${FUZZ_TIMEOUT:-10}
 RSS_MB=${FUZZ_RSS_MB:-2048}
 JOBS=${JOBS:-2}
+FRESH=${FUZZ_FRESH:-fail}
 
 if ! [[ $SECONDS_PER_TARGET =~ ^[0-9]+$ ]] || ((SECONDS_PER_TARGET < 1)); then
     echo "usage: bash tests/fuzz/run.sh [SECONDS per target]" >&2
@@ -98,6 +105,7 @@ while ((${#pending[@]} > 0)); do
 done
 
 failed=0
+reported=0
 printf 'fuzz: %-14s %12s %9s %7s %7s %7s  %s\n' target executions exec/s \
     cov ft corpus verdict
 for t in "${TARGETS[@]}"; do
@@ -110,8 +118,16 @@ for t in "${TARGETS[@]}"; do
     ft=$(sed -n 's/.* ft: \([0-9]*\).*/\1/p' <<<"$last")
     corp=$(sed -n 's/.* corp: \([0-9]*\).*/\1/p' <<<"$last")
     verdict=ok
+    fresh=0 # the failure came from a new input, after the corpus replay
+    if [[ $rc != 0 ]] && grep -q '^#[0-9]* *INITED' "$log"; then
+        fresh=1
+    fi
     if [[ $rc != 0 ]]; then
-        failed=$((failed + 1))
+        if [[ $fresh == 1 && $FRESH == report ]]; then
+            reported=$((reported + 1))
+        else
+            failed=$((failed + 1))
+        fi
         if grep -q 'INVARIANT VIOLATED' "$log"; then
             verdict="invariant violated"
         elif grep -q 'ERROR: libFuzzer: timeout' "$log"; then
@@ -124,6 +140,9 @@ for t in "${TARGETS[@]}"; do
             verdict="crash"
         else
             verdict="failed (exit $rc)"
+        fi
+        if [[ $fresh == 1 && $FRESH == report ]]; then
+            verdict="$verdict: NEW FINDING (reported, not failing the run)"
         fi
     fi
     printf 'fuzz: %-14s %12s %9s %7s %7s %7s  %s\n' "$t" "${execs:-?}" \
@@ -150,6 +169,10 @@ for t in "${TARGETS[@]}"; do
         echo "fuzz:     log: $log"
     fi
 done
+if ((reported > 0)); then
+    echo "fuzz: $reported new finding(s) reported above: turn each into a" \
+        "regression (keep it: …) and fix it"
+fi
 if ((failed > 0)); then
     echo "fuzz: $failed target(s) failed"
     exit 1
