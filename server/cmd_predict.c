@@ -155,18 +155,6 @@ static void predict_render(json_t *doc, const predict_view *pv, size_t top,
         err);
 }
 
-/* The smallest content sum of a diagram of n boxes with at most d rows:
- * that of the most balanced one (rows of q + 1, then q boxes), since moving
- * a box down to a shorter row lowers the content. */
-static int64_t predict_content_min(unsigned n, unsigned d) {
-    int64_t rows = n < d ? n : d, q = n / rows, extra = n % rows, c = 0;
-    for (int64_t i = 0; i < rows; i++) {
-        int64_t l = q + (i < extra);
-        c += l * (l - 1) / 2 - i * l;
-    }
-    return c;
-}
-
 /* The cost model of a served prediction, before the table is computed:
  * with N = ss_diagram_count(n, d) diagrams and at most
  * L = min(N, C(n,2) − c_min + 1) energy levels (distinct contents), the
@@ -178,7 +166,7 @@ static ss_status predict_check(const cli_value *v, unsigned atoms,
     unsigned long long n = atoms, count = ss_diagram_count(atoms, levels);
     unsigned long long span =
         (unsigned long long)((int64_t)(n * (n - 1) / 2) -
-                             predict_content_min(atoms, levels) + 1);
+                             ss_diagram_content_min(atoms, levels) + 1);
     unsigned long long lv = span < count ? span : count;
     unsigned long long listed = PREDICT_PER_LEVEL * lv;
     unsigned long long top =

@@ -8,7 +8,6 @@
  * seed and inputs always give the same output.
  */
 #include <stdlib.h>
-#include <time.h>
 
 #include <gsl/gsl_rng.h>
 
@@ -87,12 +86,6 @@ static json_t *simulate_summary(const double *energies, size_t shots,
     return obj;
 }
 
-static double simulate_now(void) {
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
-
 /* Draws the shots; energies has room for `shots` values.  Past the
  * budget's max_seconds (none when budget is NULL or sets none) it stops
  * with SS_EDEADLINE. */
@@ -101,17 +94,16 @@ static void simulate_draw(ss_sampler *sampler, gsl_rng *rng, unsigned atoms,
                           size_t shots, const ss_budget *budget,
                           double *energies, json_t *diagrams, ss_error *err) {
     uint32_t rows[SS_LEVELS_MAX];
-    double limit = budget != NULL ? budget->max_seconds : 0.0;
-    double deadline = limit > 0 ? simulate_now() + limit : 0.0;
+    double deadline = ss_budget_deadline(budget);
     size_t stride = atoms >= SIMULATE_CLOCK_ATOMS
                         ? 1
                         : SIMULATE_CLOCK_ATOMS / atoms; /* shots per look */
     for (size_t k = 0; k < shots && err->code == SS_OK; k++) {
-        if (deadline > 0 && k % stride == 0 && simulate_now() > deadline) {
+        if (k % stride == 0 && ss_budget_expired(deadline)) {
             ss_error_set(err, SS_EDEADLINE, "max_seconds",
                          "the simulation did not finish %zu shots within "
                          "%.3g s (the request deadline); ask for fewer",
-                         shots, limit);
+                         shots, budget->max_seconds);
             return;
         }
         if (ss_sampler_shot(sampler, rng, atoms, cal, rows, &energies[k],

@@ -138,6 +138,13 @@ typedef struct {
 #define SS_BUDGET_WORK_DEFAULT 30000000000ull
 ss_budget ss_budget_default(void);
 
+/* The deadline of a phase that starts now: max_seconds from now on
+ * CLOCK_MONOTONIC (which no change of the wall clock moves), or 0 when
+ * budget is NULL or sets none.  ss_budget_expired tells whether such a
+ * deadline has passed (never for 0). */
+double ss_budget_deadline(const ss_budget *budget);
+int ss_budget_expired(double deadline);
+
 /* ------------------------------------------------------------------------ */
 /* Young diagrams (module diagram).  A diagram with at most d rows is stored as
  * d row lengths, non-increasing, zero-padded: (4,1,1) with d = 3 is {4,1,1},
@@ -153,6 +160,11 @@ uint64_t ss_diagram_table_cells(unsigned atoms, unsigned levels);
 
 /* Content sum c(λ) = Σ_boxes (column − row) of rows[0..levels-1]. */
 int64_t ss_diagram_content(const uint32_t *rows, unsigned levels);
+/* The smallest content sum of a diagram of atoms boxes with at most levels
+ * rows: that of the most balanced one (rows of q + 1 boxes, then rows of
+ * q), because moving a box down to a shorter row lowers the content.  The
+ * contents of such diagrams lie in [this, C(atoms, 2)]. */
+int64_t ss_diagram_content_min(unsigned atoms, unsigned levels);
 
 /* log f^λ, the log of the number of standard Young tableaux (hook length
  * formula in its row form).  rows must be a valid diagram. */

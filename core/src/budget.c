@@ -11,38 +11,27 @@
 #include <stdio.h>
 #include <time.h>
 
-double ss__now(void) {
+static double ss__now(void) {
     struct timespec t;
     clock_gettime(CLOCK_MONOTONIC, &t);
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
-double ss__deadline(const ss_budget *budget) {
+double ss_budget_deadline(const ss_budget *budget) {
     if (budget == NULL || !(budget->max_seconds > 0))
         return 0.0;
     return ss__now() + budget->max_seconds;
 }
 
-/* Content sum of the most balanced diagram of `atoms` with at most `levels`
- * rows (rows of q + 1 boxes, then rows of q): the smallest content there
- * is, because moving a box down to a shorter row lowers the content. */
-int64_t ss__content_min(unsigned atoms, unsigned levels) {
-    unsigned rows = atoms < levels ? atoms : levels;
-    if (rows == 0)
-        return 0;
-    int64_t q = atoms / rows, extra = atoms % rows, c = 0;
-    for (int64_t i = 0; i < (int64_t)rows; i++) {
-        int64_t l = q + (i < extra);
-        c += l * (l - 1) / 2 - i * l;
-    }
-    return c;
+int ss_budget_expired(double deadline) {
+    return deadline > 0 && ss__now() > deadline;
 }
 
 uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
                                   uint64_t diagrams) {
     int64_t n = atoms;
     uint64_t span =
-        (uint64_t)(n * (n - 1) / 2 - ss__content_min(atoms, levels) + 1);
+        (uint64_t)(n * (n - 1) / 2 - ss_diagram_content_min(atoms, levels) + 1);
     return span < diagrams ? span : diagrams;
 }
 
@@ -63,6 +52,12 @@ static int ss__runs_bootstrap(const ss_analysis_request *req) {
                 m = SS_METHOD_LIKELIHOOD;
     }
     return m == SS_METHOD_MOMENTS;
+}
+
+/* The request's max_table_cells (0: the default's). */
+static uint64_t ss__table_cap(const ss_analysis_request *req) {
+    uint64_t cap = req->budget.max_table_cells;
+    return cap != 0 ? cap : ss_budget_default().max_table_cells;
 }
 
 ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
@@ -101,9 +96,7 @@ ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
     /* every run's exact law once (candidates, likelihood), once more for
      * the bootstrap at the estimate */
     uint64_t phases = c.bootstrap > 0 ? 2 : 1;
-    uint64_t cap = req->budget.max_table_cells;
-    if (cap == 0)
-        cap = ss_budget_default().max_table_cells;
+    uint64_t cap = ss__table_cap(req);
     if (c.table_cells > cap / phases) {
         char field[48] = "runs";
         if (biggest_cells > cap / phases)
@@ -132,11 +125,9 @@ ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
 }
 
 unsigned ss__bootstrap_auto(const ss__cost *c, const ss_analysis_request *req) {
-    uint64_t cap = req->budget.max_table_cells;
-    if (cap == 0)
-        cap = ss_budget_default().max_table_cells;
     uint64_t afford = SS__BOOT_UNITS_MAX / c->replicate_units;
-    if (c->table_cells > cap / 2 || afford < SS__AUTO_BOOTSTRAP_MIN)
+    if (c->table_cells > ss__table_cap(req) / 2 ||
+        afford < SS__AUTO_BOOTSTRAP_MIN)
         return 0; /* the error bars stay those of the delta method */
     return afford < SS__AUTO_BOOTSTRAP ? (unsigned)afford : SS__AUTO_BOOTSTRAP;
 }

@@ -225,3 +225,15 @@ void ss_diagram_set_free(ss_diagram_set *set) {
     free(set->content);
     free(set);
 }
+
+int64_t ss_diagram_content_min(unsigned atoms, unsigned levels) {
+    unsigned rows = atoms < levels ? atoms : levels;
+    if (rows == 0)
+        return 0;
+    int64_t q = atoms / rows, extra = atoms % rows, c = 0;
+    for (int64_t i = 0; i < (int64_t)rows; i++) {
+        int64_t l = q + (i < extra);
+        c += l * (l - 1) / 2 - i * l;
+    }
+    return c;
+}

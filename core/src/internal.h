@@ -49,11 +49,6 @@ static inline uint64_t ss__rank_of(const ss__rank_table *t, const long *a,
     return r;
 }
 
-/* The monotonic clock in seconds, and the deadline max_seconds from now
- * (0 when the budget sets none) — budget.c. */
-double ss__now(void);
-double ss__deadline(const ss_budget *budget);
-
 /* The cost model of an analysis, estimated from the request alone before
  * any work (budget.c).
  *
@@ -93,9 +88,7 @@ typedef struct {
     uint64_t replicate_units; /* one bootstrap replicate */
     unsigned bootstrap;       /* replicates the request will draw */
 } ss__cost;
-/* Smallest content of a diagram of atoms with at most levels rows, and the
- * bound L above (diagrams = the number of diagrams, or UINT64_MAX). */
-int64_t ss__content_min(unsigned atoms, unsigned levels);
+/* The bound L above (diagrams = the number of diagrams, or UINT64_MAX). */
 uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
                                   uint64_t diagrams);
 uint64_t ss__bootstrap_fixed_units(unsigned levels);

@@ -65,7 +65,7 @@ typedef struct {
     int failed;
     uint64_t work, work_max; /* see ss_budget.max_work */
     uint64_t work_per_eval;
-    double deadline; /* ss__now() limit, 0 = none */
+    double deadline; /* ss_budget_deadline, 0 = none */
     int over;        /* 1: work_max passed, 2: the deadline; evaluations
                         stop */
 } ss__lik;
@@ -90,7 +90,7 @@ static int ss__lik_update(ss__lik *L, const double *p) {
         L->over = L->over ? L->over : 1; /* cheap from here on */
         return 0;
     }
-    if (L->deadline > 0 && ss__now() > L->deadline) {
+    if (ss_budget_expired(L->deadline)) {
         L->over = 2;
         return 0;
     }
@@ -173,7 +173,7 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
     L->d = d;
     L->work_max =
         budget && budget->max_work ? budget->max_work : SS_BUDGET_WORK_DEFAULT;
-    L->deadline = ss__deadline(budget);
+    L->deadline = ss_budget_deadline(budget);
     L->cal = cal;
     L->sigma = cal->noise_sd;
     L->R = R;

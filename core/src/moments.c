@@ -312,9 +312,9 @@ ss_status ss__moments_bootstrap(unsigned d, const ss__run_stats *rs, size_t R,
         st = ss_error_set(err, SS_ENOMEM, "", NULL);
     if (st != SS_OK)
         goto done;
-    double deadline = ss__deadline(budget);
+    double deadline = ss_budget_deadline(budget);
     for (unsigned b = 0; b < replicates; b++) {
-        if (deadline > 0 && (b & 15u) == 0 && ss__now() > deadline) {
+        if ((b & 15u) == 0 && ss_budget_expired(deadline)) {
             st = ss_error_set(err, SS_EDEADLINE, "max_seconds",
                               "the bootstrap did not finish %u replicates "
                               "within %.3g s (the request deadline); ask for "
