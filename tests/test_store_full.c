@@ -16,7 +16,7 @@
 #include <pthread.h>
 #include <sqlite3.h>
 
-#include "http_harness.h"
+#include "calib_harness.h"
 
 static hh_daemon hd;
 static char switch_path[PATH_MAX]; /* exists = the disk is full */
@@ -252,24 +252,12 @@ static void sf_expect_unchanged(const sf_acked *acked, int n,
 static void sf_expect_file(int analyses, const char *key, const char *key_id) {
     char path[128];
     snprintf(path, sizeof path, "%s/store.db", hd.dir);
-    sqlite3 *db = NULL;
-    cr_assert(sqlite3_open_v2(path, &db, SQLITE_OPEN_READWRITE, NULL) ==
-              SQLITE_OK);
+    ch_integrity_ok(path);
+    sqlite3 *db = ch_db(path);
+    long long stored = ch_int(db, "SELECT count(*) FROM analyses");
+    cr_expect(stored == analyses, "%lld analyses in the file, expected %d",
+              stored, analyses);
     sqlite3_stmt *q = NULL;
-    cr_assert(sqlite3_prepare_v2(db, "PRAGMA integrity_check", -1, &q, NULL) ==
-              SQLITE_OK);
-    cr_assert(sqlite3_step(q) == SQLITE_ROW);
-    const char *verdict = (const char *)sqlite3_column_text(q, 0);
-    cr_expect(verdict && strcmp(verdict, "ok") == 0, "integrity_check: %s",
-              verdict ? verdict : "(null)");
-    sqlite3_finalize(q);
-    cr_assert(sqlite3_prepare_v2(db, "SELECT count(*) FROM analyses", -1, &q,
-                                 NULL) == SQLITE_OK);
-    cr_assert(sqlite3_step(q) == SQLITE_ROW);
-    cr_expect(sqlite3_column_int(q, 0) == analyses,
-              "%d analyses in the file, expected %d", sqlite3_column_int(q, 0),
-              analyses);
-    sqlite3_finalize(q);
     if (key != NULL) {
         cr_assert(sqlite3_prepare_v2(db,
                                      "SELECT analysis_id FROM idempotency_keys"
