@@ -83,7 +83,10 @@ ss_status committer_start(store *db, size_t max_batch, committer **out,
     c->db = db;
     c->max_batch = max_batch ? max_batch : 1;
     ss_status st = store_conn_open(db, &c->conn, err);
+    if (st == SS_OK) /* the writer's commits never wait for a checkpoint */
+        st = store_conn_background_checkpoints(c->conn, err);
     if (st != SS_OK) {
+        store_conn_close(c->conn);
         free(c);
         return st;
     }

@@ -15,10 +15,12 @@
  * for 100 Continue and for bodies over HTTP_DRAIN_LIMIT, else on the last
  * call after the body was read and dropped.
  */
+#define _GNU_SOURCE /* SCHED_BATCH in <sched.h> */
 #include <arpa/inet.h>
 #include <errno.h>
 #include <microhttpd.h>
 #include <pthread.h>
+#include <sched.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -511,6 +513,27 @@ static char *http_read_file(const char *path, ss_error *err,
     return buf;
 }
 
+/* The calling thread's scheduling policy: SCHED_BATCH (on) or SCHED_OTHER
+ * (off); threads it creates inherit it.  The worker threads run under
+ * SCHED_BATCH (sched(7): Linux does not let a woken batch thread preempt
+ * the running one), so that the group-commit writer — the one serial stage
+ * of every stored analysis — is not preempted by each worker it wakes when
+ * it resumes the connections of a commit.  Measured under the load script
+ * (64 connections, 2 cores): the writer spent 0.57–0.84 ms per commit of
+ * ~30 records resuming connections with the default policy, 0.10 ms with
+ * this one.  An unprivileged thread may switch between the two; where it
+ * cannot, the default policy stays, which only costs speed. */
+static void http_batch_policy(int on) {
+#ifdef SCHED_BATCH
+    struct sched_param none;
+    memset(&none, 0, sizeof none);
+    (void)pthread_setschedparam(pthread_self(), on ? SCHED_BATCH : SCHED_OTHER,
+                                &none);
+#else
+    (void)on;
+#endif
+}
+
 static int http_is_loopback(const char *host) {
     return strcmp(host, "127.0.0.1") == 0 || strcmp(host, "::1") == 0 ||
            strcmp(host, "localhost") == 0 || strncmp(host, "127.", 4) == 0;
@@ -610,9 +633,11 @@ int http_serve(const http_settings *settings, ss_error *err) {
         opts[n++] = (struct MHD_OptionItem){MHD_OPTION_HTTPS_MEM_KEY, 0, key};
     }
     opts[n++] = (struct MHD_OptionItem){MHD_OPTION_END, 0, NULL};
+    http_batch_policy(1); /* inherited by MHD's worker threads */
     d = MHD_start_daemon(flags, 0, NULL, NULL, http_access, app,
                          MHD_OPTION_NOTIFY_COMPLETED, http_completed, app,
                          MHD_OPTION_ARRAY, opts, MHD_OPTION_END);
+    http_batch_policy(0);
     if (d == NULL) {
         ss_error_set(err, SS_EUNAVAILABLE, "listen",
                      "cannot listen on %s:%u: %s", settings->listen_host,

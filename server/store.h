@@ -111,6 +111,18 @@ const char *store_path(const store *s);
 ss_status store_conn_open(store *s, store_conn **out, ss_error *err);
 void store_conn_close(store_conn *c); /* accepts NULL */
 
+/* For a connection that commits continuously (the service's group-commit
+ * writer): its commits no longer copy the log back into the database file
+ * themselves; a thread with a connection of its own does that in the
+ * background, and the writer only finishes each pass between two
+ * transactions (SQLite: WAL checkpoints, store_sqlite_checkpoint.c).
+ * Durability is unchanged.  Ended by store_conn_close. */
+ss_status store_conn_background_checkpoints(store_conn *c, ss_error *err);
+/* Background passes ended and passes the writer finished so far (0, 0
+ * without background checkpoints); for tests. */
+void store_checkpoint_counts(store_conn *c, unsigned long *passes,
+                             unsigned long *restarts);
+
 /* Stores one analysis durably: SS_OK means the record (and, when idem_key is
  * not NULL, the idempotency record {idem_key, fingerprint, rec->id,
  * rec->created_at}) committed in one transaction and survives a crash of the

@@ -192,6 +192,7 @@ ss_status store_conn_open(store *s, store_conn **out, ss_error *err) {
 void store_conn_close(store_conn *c) {
     if (c == NULL)
         return;
+    store__checkpointer_stop(c);
     for (int i = 0; i < SQ_FIXED_COUNT; ++i)
         sqlite3_finalize(c->fixed[i]);
     for (int i = 0; i < SQ_LIST_VARIANTS; ++i)
@@ -342,6 +343,8 @@ ss_status store_put_batch(store_conn *c, store_put_item *items, size_t n,
     }
     if (st == SS_OK)
         sq_run(c, SQ_COMMIT, "committing", &st, &local);
+    if (st == SS_OK)
+        store__checkpoint_after_commit(c);
     if (st != SS_OK) {
         sq_rollback(c);
         ss_error_set(err, st, local.field, "%s", local.message);

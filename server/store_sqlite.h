@@ -1,8 +1,8 @@
 /*
  * store_sqlite.h — internals of the SQLite backend of the store, shared by
  * store_sqlite.c, store_sqlite_read.c, store_sqlite_list.c,
- * store_sqlite_schema.c and the schema-2 files store_sqlite_calib.c,
- * store_sqlite_revisions.c and store_sqlite_jobs.c.
+ * store_sqlite_schema.c, store_sqlite_checkpoint.c and the schema-2 files
+ * store_sqlite_calib.c, store_sqlite_revisions.c and store_sqlite_jobs.c.
  *
  * Handlers include store.h only.  Tests and diagnostics may use
  * store_sqlite_handle() to reach the connection's own sqlite3 handle (for
@@ -58,13 +58,24 @@ enum {
     SQL_LAZY_COUNT = SQL_JOB_FIRST + SQL_JOB_COUNT
 };
 
+/* The background checkpoints of a writer's connection
+ * (store_sqlite_checkpoint.c). */
+typedef struct store_checkpointer store_checkpointer;
+
 struct store_conn {
     const store *owner;
     sqlite3 *db;
     sqlite3_stmt *fixed[SQ_FIXED_COUNT];
     sqlite3_stmt *list[SQ_LIST_VARIANTS]; /* prepared on first use */
     sqlite3_stmt *lazy[SQL_LAZY_COUNT];   /* prepared on first use */
+    store_checkpointer *ckpt; /* NULL unless background checkpoints */
 };
+
+/* After a commit on a connection with background checkpoints: when a pass
+ * has ended, a RESTART checkpoint of the frames committed meanwhile. */
+void store__checkpoint_after_commit(store_conn *c);
+/* Ends the checkpoint thread of c, if any (store_conn_close). */
+void store__checkpointer_stop(store_conn *c);
 
 /* Maps an SQLite result code to a status: BUSY/LOCKED -> SS_EBUSY, FULL ->
  * SS_ESTOREFULL, NOMEM -> SS_ENOMEM, anything else -> SS_ESTORE. */

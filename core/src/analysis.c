@@ -598,16 +598,18 @@ static void ss__flag_symmetry(ss_analysis *a, const ss_analysis_request *req) {
     if (worst == SIZE_MAX)
         return;
     double J = fabs(req->calibration.exchange);
+    const char *unit_gap = req->calibration.unit[0] ? " " : ""; /* none: "" */
     ss_flag *f = ss__flag_add(
         a, SS_FLAG_SYMMETRY_CAUTION, (int)worst,
         "Run %zu (%u atoms): the measured pair-coupling spread (%.3g of J) "
-        "adds a symmetry-breaking term of about %.3g %s against a level "
-        "spacing of %.3g %s, so diagrams mix at about the %.2g level and "
+        "adds a symmetry-breaking term of about %.3g%s%s against a level "
+        "spacing of %.3g%s%s, so diagrams mix at about the %.2g level and "
         "the energies no longer follow the equal-coupling model exactly. "
         "Treat the spectrum as approximate; flatten the trap or use fewer "
         "atoms.",
-        worst, req->runs[worst].atoms, s, ratio * J, req->calibration.unit, J,
-        req->calibration.unit, ratio * ratio);
+        worst, req->runs[worst].atoms, s, ratio * J, unit_gap,
+        req->calibration.unit, J, unit_gap, req->calibration.unit,
+        ratio * ratio);
     ss__flag_number(f, "coupling_spread", s);
     ss__flag_number(f, "atoms", req->runs[worst].atoms);
     ss__flag_number(f, "breaking_to_spacing", ratio);
@@ -633,11 +635,12 @@ static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
         a, SS_FLAG_DEGENERATE_ENERGY, (int)r,
         "Run %zu (%u atoms): %u energies among the candidates belong to more "
         "than one Young diagram (%zu diagrams in all; e.g. content %lld at "
-        "%.6g %s), and the diagrams of each such energy imply different "
+        "%.6g%s%s), and the diagrams of each such energy imply different "
         "spectra: no energy resolution can tell them apart (listed in "
         "runs[%zu].degenerate_groups).",
         r, out->atoms, out->degenerate_group_count, members,
-        (long long)c->content, c->energy, cal->unit, r);
+        (long long)c->content, c->energy, cal->unit[0] ? " " : "", cal->unit,
+        r);
     ss__flag_number(f, "atoms", out->atoms);
     ss__flag_number(f, "groups", out->degenerate_group_count);
     ss__flag_number(f, "diagrams", (double)members);
