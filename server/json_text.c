@@ -11,8 +11,9 @@
  * "16.8" and not "16.800000000000001", and every text reads back to the
  * same double.  tests/test_json_text.c holds the output against glibc
  * (snprintf "%.*e" for the digits, strtod for the reading back) on
- * millions of values.  Other magnitudes, zeros and subnormals go through
- * snprintf "%.17g".  Owns the writer's buffer until jt_finish.
+ * millions of values.  Zeros and integers below 10^15 are written
+ * directly; other magnitudes and subnormals go through snprintf "%.17g".  Owns
+ * the writer's buffer until jt_finish.
  */
 #include "json_text.h"
 
@@ -171,67 +172,92 @@ static int jt_reads_back(uint64_t m, int e, int k, unsigned biased, int p,
     return even ? d <= tol : d < tol;
 }
 
+static const char jt_pairs[201] = "00010203040506070809"
+                                  "10111213141516171819"
+                                  "20212223242526272829"
+                                  "30313233343536373839"
+                                  "40414243444546474849"
+                                  "50515253545556575859"
+                                  "60616263646566676869"
+                                  "70717273747576777879"
+                                  "80818283848586878889"
+                                  "90919293949596979899";
+
+/* The 8 decimal digits of v < 10^8, leading zeros included. */
+static void jt_digits8(char o[8], uint32_t v) {
+    uint32_t a = v / 10000u, b = v % 10000u;
+    memcpy(o, jt_pairs + 2 * (a / 100u), 2);
+    memcpy(o + 2, jt_pairs + 2 * (a % 100u), 2);
+    memcpy(o + 4, jt_pairs + 2 * (b / 100u), 2);
+    memcpy(o + 6, jt_pairs + 2 * (b % 100u), 2);
+}
+
 /* Writes the 17 digits of D with decimal exponent E as "%.17g" would,
  * then jansson's tidying. */
 static size_t jt_place(int neg, uint64_t D, int E, char out[32]) {
-    static const char pairs[201] = "00010203040506070809"
-                                   "10111213141516171819"
-                                   "20212223242526272829"
-                                   "30313233343536373839"
-                                   "40414243444546474849"
-                                   "50515253545556575859"
-                                   "60616263646566676869"
-                                   "70717273747576777879"
-                                   "80818283848586878889"
-                                   "90919293949596979899";
-    char d[18];
-    for (int i = 15; i >= 1; i -= 2) { /* d[1..16] two digits at a time */
-        unsigned two = (unsigned)(D % 100u);
-        D /= 100u;
-        d[i] = pairs[2 * two];
-        d[i + 1] = pairs[2 * two + 1];
-    }
-    d[0] = (char)('0' + D); /* D < 10 is left */
-    int last = 16;          /* last significant digit */
+    char d[17];
+    uint32_t hi = (uint32_t)(D / 100000000u); /* < 10^9 */
+    jt_digits8(d + 9, (uint32_t)(D % 100000000u));
+    jt_digits8(d + 1, hi % 100000000u);
+    d[0] = (char)('0' + hi / 100000000u);
+    int last = 16; /* last significant digit */
     while (last > 0 && d[last] == '0')
         last--;
-    size_t n = 0;
+    char *o = out;
     if (neg)
-        out[n++] = '-';
+        *o++ = '-';
     if (E < -4 || E >= 17) {
-        out[n++] = d[0];
+        *o++ = d[0];
         if (last > 0) {
-            out[n++] = '.';
-            for (int i = 1; i <= last; i++)
-                out[n++] = d[i];
+            *o++ = '.';
+            memcpy(o, d + 1, (size_t)last);
+            o += last;
         }
-        out[n++] = 'e';
+        *o++ = 'e';
         unsigned ae = (unsigned)(E < 0 ? -E : E);
         if (E < 0)
-            out[n++] = '-';
+            *o++ = '-';
         if (ae >= 100)
-            out[n++] = (char)('0' + ae / 100u);
+            *o++ = (char)('0' + ae / 100u);
         if (ae >= 10)
-            out[n++] = (char)('0' + ae / 10u % 10u);
-        out[n++] = (char)('0' + ae % 10u);
+            *o++ = (char)('0' + ae / 10u % 10u);
+        *o++ = (char)('0' + ae % 10u);
     } else if (E >= 0) {
-        for (int i = 0; i <= E; i++)
-            out[n++] = d[i];
-        out[n++] = '.';
-        if (last <= E)
-            out[n++] = '0'; /* jansson's ".0" */
-        for (int i = E + 1; i <= last; i++)
-            out[n++] = d[i];
+        memcpy(o, d, (size_t)E + 1);
+        o += E + 1;
+        *o++ = '.';
+        if (last <= E) {
+            *o++ = '0'; /* jansson's ".0" */
+        } else {
+            memcpy(o, d + E + 1, (size_t)(last - E));
+            o += last - E;
+        }
     } else {
-        out[n++] = '0';
-        out[n++] = '.';
-        for (int i = 0; i < -E - 1; i++)
-            out[n++] = '0';
-        for (int i = 0; i <= last; i++)
-            out[n++] = d[i];
+        *o++ = '0';
+        *o++ = '.';
+        memset(o, '0', (size_t)(-E - 1));
+        o += -E - 1;
+        memcpy(o, d, (size_t)last + 1);
+        o += last + 1;
     }
-    out[n] = '\0';
-    return n;
+    *o = '\0';
+    return (size_t)(o - out);
+}
+
+/* The decimal digits of x (a '-' first when negative) in out, without a
+ * terminating NUL; returns their count (at most 20). */
+static size_t jt_int_text(int64_t x, char out[24]) {
+    char t[24];
+    size_t n = sizeof t, len = 0;
+    uint64_t v = x < 0 ? 0u - (uint64_t)x : (uint64_t)x;
+    do {
+        t[--n] = (char)('0' + v % 10u);
+        v /= 10u;
+    } while (v != 0);
+    if (x < 0)
+        out[len++] = '-';
+    memcpy(out + len, t + n, sizeof t - n);
+    return len + sizeof t - n;
 }
 
 /* floor(log10 |x|) for a normal x = 1.f·2^e2, or one off (the caller's
@@ -259,8 +285,20 @@ size_t json_text_number(double x, char out[32]) {
     }
     uint64_t u;
     memcpy(&u, &x, sizeof u);
+    if (x == 0) { /* "0.0" or "-0.0", as jt_place writes them */
+        size_t n = u >> 63 ? 4 : 3;
+        memcpy(out, u >> 63 ? "-0.0" : "0.0", n + 1);
+        return n;
+    }
+    if (fabs(x) < 1e15 && x == (double)(int64_t)x) {
+        /* an integer below 10^15 has at most 15 digits, all of them exact:
+         * its 15-digit rounding is itself, so it prints as "%lld.0" */
+        size_t len = jt_int_text((int64_t)x, out);
+        memcpy(out + len, ".0", 3);
+        return len + 2;
+    }
     unsigned biased = (unsigned)(u >> 52) & 0x7ffu;
-    if (biased == 0) /* zero or subnormal */
+    if (biased == 0) /* subnormal */
         return jt_fallback(x, out);
     uint64_t m = (u & ((1ull << 52) - 1u)) | (1ull << 52);
     int e = (int)biased - 1075;
@@ -399,18 +437,45 @@ void jt_object_end(jt_writer *w) { jt_close(w, '}'); }
 void jt_array_begin(jt_writer *w) { jt_open(w, '['); }
 void jt_array_end(jt_writer *w) { jt_close(w, ']'); }
 
-/* s[0..n) quoted; NUL bytes inside are escaped like any control byte. */
-static void jt_quoted_n(jt_writer *w, const char *s, size_t n) {
+/* 1 for the bytes a JSON string cannot hold as they are (RFC 8259 §7):
+ * control bytes, the quotation mark and the reverse solidus. */
+static const unsigned char jt_escaped[256] = {
+    [0x00] = 1, [0x01] = 1, [0x02] = 1, [0x03] = 1, [0x04] = 1, [0x05] = 1,
+    [0x06] = 1, [0x07] = 1, [0x08] = 1, [0x09] = 1, [0x0a] = 1, [0x0b] = 1,
+    [0x0c] = 1, [0x0d] = 1, [0x0e] = 1, [0x0f] = 1, [0x10] = 1, [0x11] = 1,
+    [0x12] = 1, [0x13] = 1, [0x14] = 1, [0x15] = 1, [0x16] = 1, [0x17] = 1,
+    [0x18] = 1, [0x19] = 1, [0x1a] = 1, [0x1b] = 1, [0x1c] = 1, [0x1d] = 1,
+    [0x1e] = 1, [0x1f] = 1, ['"'] = 1,  ['\\'] = 1};
+
+/* s[0..n) quoted, then `colon` ':' characters (0 or 1); NUL bytes inside
+ * are escaped like any control byte.  A string without anything to escape
+ * (every key and nearly every text here) is copied in one piece. */
+static void jt_quoted_n(jt_writer *w, const char *s, size_t n, size_t colon) {
     static const char hex[] = "0123456789abcdef";
+    const unsigned char *p = (const unsigned char *)s, *end = p + n, *run = p;
+    while (p < end && !jt_escaped[*p])
+        p++;
+    if (p == end) {
+        if (!jt_reserve(w, n + 2 + colon))
+            return;
+        char *o = w->buf + w->len;
+        o[0] = '"';
+        memcpy(o + 1, s, n);
+        o[n + 1] = '"';
+        o[n + 2] = ':'; /* overwritten by the NUL when colon is 0 */
+        w->len += n + 2 + colon;
+        w->buf[w->len] = '\0';
+        return;
+    }
     jt_put(w, "\"", 1);
-    const char *run = s, *end = s + n;
-    for (const char *p = s;; p++) {
-        unsigned char c = p < end ? (unsigned char)*p : 0;
-        if (p < end && c >= 0x20 && c != '"' && c != '\\')
-            continue;
-        jt_put(w, run, (size_t)(p - run));
+    for (;;) {
+        while (p < end && !jt_escaped[*p])
+            p++;
+        jt_put(w, (const char *)run, (size_t)(p - run));
         if (p == end)
             break;
+        unsigned char c = *p++;
+        run = p;
         char esc[7] = {'\\', (char)c, 0, 0, 0, 0, 0};
         size_t elen = 2;
         switch (c) {
@@ -439,13 +504,8 @@ static void jt_quoted_n(jt_writer *w, const char *s, size_t n) {
             elen = 6;
         }
         jt_put(w, esc, elen);
-        run = p + 1;
     }
-    jt_put(w, "\"", 1);
-}
-
-static void jt_quoted(jt_writer *w, const char *s) {
-    jt_quoted_n(w, s, strlen(s));
+    jt_put(w, "\":", 1 + colon);
 }
 
 void jt_key(jt_writer *w, const char *key) {
@@ -454,14 +514,13 @@ void jt_key(jt_writer *w, const char *key) {
         return;
     }
     jt_item(w);
-    jt_quoted(w, key);
-    jt_put(w, ":", 1);
+    jt_quoted_n(w, key, strlen(key), 1);
     w->after_key = 1;
 }
 
 void jt_string(jt_writer *w, const char *s) {
     jt_item(w);
-    jt_quoted(w, s);
+    jt_quoted_n(w, s, strlen(s), 0);
 }
 
 void jt_number(jt_writer *w, double x) {
@@ -473,16 +532,9 @@ void jt_number(jt_writer *w, double x) {
 
 void jt_integer(jt_writer *w, int64_t x) {
     char text[24];
-    size_t n = sizeof text;
-    uint64_t v = x < 0 ? 0u - (uint64_t)x : (uint64_t)x;
-    do {
-        text[--n] = (char)('0' + v % 10u);
-        v /= 10u;
-    } while (v != 0);
-    if (x < 0)
-        text[--n] = '-';
+    size_t n = jt_int_text(x, text);
     jt_item(w);
-    jt_put(w, text + n, sizeof text - n);
+    jt_put(w, text, n);
 }
 
 void jt_null(jt_writer *w) {
@@ -527,7 +579,7 @@ void jt_json(jt_writer *w, const json_t *v) {
         break;
     case JSON_STRING:
         jt_item(w);
-        jt_quoted_n(w, json_string_value(v), json_string_length(v));
+        jt_quoted_n(w, json_string_value(v), json_string_length(v), 0);
         break;
     case JSON_INTEGER:
         jt_integer(w, (int64_t)json_integer_value(v));

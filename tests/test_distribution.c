@@ -648,6 +648,36 @@ Test(distribution, budget_limits) {
     ss_distribution_free(out);
 }
 
+/* A zero limit means the default's (header), here as in the analysis's
+ * cost model: a zeroed budget computes what NULL computes, and a single
+ * zero field still leaves the other limit in force. */
+Test(distribution, zero_limits_mean_the_defaults) {
+    const double q[3] = {0.5, 0.3, 0.2};
+    ss_budget zero;
+    memset(&zero, 0, sizeof zero);
+    ss_error err;
+    ss_error_clear(&err);
+    ss_distribution *a = NULL, *b = NULL;
+    cr_assert_eq(ss_distribution_compute(20, 3, q, 3, &zero, &a, &err), SS_OK,
+                 "zeroed budget: %s: %s", err.field, err.message);
+    cr_assert_eq(ss_distribution_compute(20, 3, q, 3, NULL, &b, &err), SS_OK);
+    cr_assert_eq(a->diagrams->count, b->diagrams->count);
+    for (size_t i = 0; i < a->diagrams->count; ++i)
+        cr_expect_eq(a->probability[i], b->probability[i], "diagram %zu", i);
+    ss_distribution_free(a);
+    ss_distribution_free(b);
+    ss_diagram_set *set = NULL;
+    cr_assert_eq(ss_diagram_set_alloc(20, 3, &zero, &set, &err), SS_OK);
+    cr_expect_eq(set->count, ss_diagram_count(20, 3));
+    ss_diagram_set_free(set);
+    ss_budget cells_only = {.max_table_cells = 1};
+    ss_distribution *c = NULL;
+    ss_error_clear(&err);
+    tu_expect_error(ss_distribution_compute(20, 3, q, 3, &cells_only, &c, &err),
+                    &err, SS_EBUDGET, "max_table_cells",
+                    "one cell, max_diagrams zero (the default)");
+}
+
 /* Range (header): SS_ERANGE when n·ln(d·p_max) is too large for extended
  * precision.  n = 100000, p = (0.9, 0.1): n·ln(1.8) ≈ 58779, far beyond
  * ln(LDBL_MAX) ≈ 11356 (x87 extended), while the table itself (50001

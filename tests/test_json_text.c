@@ -104,6 +104,14 @@ static uint64_t rng_next(void) { /* splitmix64 (Steele, Lea, Flood 2014) */
     return z ^ (z >> 31);
 }
 
+/* 10^k for k = 0..17. */
+static uint64_t jt_test_pow10(int k) {
+    uint64_t p = 1;
+    while (k-- > 0)
+        p *= 10u;
+    return p;
+}
+
 static void check_one(double x) {
     char got[32], want[96];
     json_text_number(x, got);
@@ -129,6 +137,26 @@ Test(json_text, numbers_random_bits) {
         if (!isfinite(x))
             continue;
         check_one(x);
+    }
+}
+
+/* Integral doubles (the writer's direct path below 10^15, the general one
+ * above): every magnitude, both signs, trailing zeros, and the bounds. */
+Test(json_text, numbers_integral) {
+    for (int i = 0; i < 200000; i++) {
+        int digits = 1 + (int)(rng_next() % 17u); /* 1..17 digits */
+        uint64_t v = rng_next() % jt_test_pow10(digits);
+        if (i % 4 == 0) /* trailing zeros */
+            v -= v % jt_test_pow10((int)(rng_next() % (unsigned)digits));
+        double x = (double)v;
+        check_one(rng_next() & 1 ? -x : x);
+    }
+    const double bounds[] = {1e15, 999999999999999.0, 1e15 - 0.5, 1e15 + 1.0,
+                             4503599627370496.0};
+    for (size_t i = 0; i < sizeof bounds / sizeof bounds[0]; i++) {
+        check_one(bounds[i]);
+        check_one(-bounds[i]);
+        check_one(nextafter(bounds[i], 0.0));
     }
 }
 
@@ -199,6 +227,8 @@ Test(json_text, document_reads_back) {
     jt_raw(&w, "{\"a\":[1,2]}", 11);
     jt_key(&w, "n");
     jt_numbers(&w, (const double[]){1.5, -2e-7, 400.0}, 3);
+    jt_key(&w, "key \"q\" \\ \t"); /* a key with escapes */
+    jt_string(&w, "");
     jt_object_end(&w);
     size_t len = 0;
     char *text = jt_finish(&w, &len);
@@ -221,6 +251,8 @@ Test(json_text, document_reads_back) {
     cr_assert_eq(json_real_value(json_array_get(json_object_get(doc, "n"), 1)),
                  -2e-7);
     cr_assert(strstr(text, "400.0") != NULL, "%s", text);
+    cr_assert_str_eq(json_string_value(json_object_get(doc, "key \"q\" \\ \t")),
+                     "");
     json_decref(doc);
     free(text);
 }

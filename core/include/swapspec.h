@@ -111,7 +111,9 @@ ss_status ss_error_set(ss_error *err, ss_status code, const char *field,
  * limit.  max_diagrams bounds the number of Young diagrams produced;
  * max_table_cells bounds the cells of the Schur-polynomial table (the memory
  * driver: 16 bytes per cell, two tables alive at once); for an analysis,
- * the cells of all its runs' tables together, twice with a bootstrap. */
+ * the cells of all its runs' tables together, twice with a bootstrap.
+ * A limit of 0 (max_diagrams, max_table_cells, max_work) means the
+ * default's, so a zeroed budget behaves as ss_budget_default(). */
 typedef struct {
     uint64_t max_diagrams;
     uint64_t max_table_cells;

@@ -56,8 +56,7 @@ static int ss__runs_bootstrap(const ss_analysis_request *req) {
 
 /* The request's max_table_cells (0: the default's). */
 static uint64_t ss__table_cap(const ss_analysis_request *req) {
-    uint64_t cap = req->budget.max_table_cells;
-    return cap != 0 ? cap : ss_budget_default().max_table_cells;
+    return ss__budget_or_default(&req->budget).max_table_cells;
 }
 
 ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,

@@ -16,6 +16,20 @@ ss_budget ss_budget_default(void) {
     return b;
 }
 
+ss_budget ss__budget_or_default(const ss_budget *budget) {
+    ss_budget d = ss_budget_default();
+    if (budget == NULL)
+        return d;
+    ss_budget b = *budget;
+    if (b.max_diagrams == 0)
+        b.max_diagrams = d.max_diagrams;
+    if (b.max_table_cells == 0)
+        b.max_table_cells = d.max_table_cells;
+    if (b.max_work == 0)
+        b.max_work = d.max_work;
+    return b;
+}
+
 /* Partitions of j into at most k parts for j = 0..atoms, in counts[]. */
 static ss_status ss__partition_counts(unsigned atoms, unsigned k,
                                       uint64_t *counts) {
@@ -180,7 +194,7 @@ ss_status ss_diagram_set_alloc(unsigned atoms, unsigned levels,
     ss_status st = ss__check_shape(atoms, levels, err);
     if (st != SS_OK)
         return st;
-    ss_budget b = budget ? *budget : ss_budget_default();
+    ss_budget b = ss__budget_or_default(budget);
     uint64_t count = ss_diagram_count(atoms, levels);
     if (count > b.max_diagrams)
         return ss_error_set(err, SS_EBUDGET, "max_diagrams",

@@ -264,7 +264,7 @@ ss_status ss__distribution_compute_many(const unsigned *atoms, size_t count,
     for (size_t k = 0; k < count; k++)
         if (atoms[k] < 1)
             nmax = 0; /* let the check name the bad value */
-    ss_budget b = budget ? *budget : ss_budget_default();
+    ss_budget b = ss__budget_or_default(budget);
     double q[SS_LEVELS_MAX];
     unsigned rank = 0;
     ss_status st =
@@ -293,7 +293,7 @@ ss_status ss_distribution_compute(unsigned atoms, unsigned levels,
                                   const ss_budget *budget,
                                   ss_distribution **out, ss_error *err) {
     double q[SS_LEVELS_MAX];
-    ss_budget b = budget ? *budget : ss_budget_default();
+    ss_budget b = ss__budget_or_default(budget);
     unsigned rank = 0;
     ss_status st =
         ss__distribution_check(atoms, levels, p, len, &b, q, &rank, err);

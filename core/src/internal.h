@@ -18,6 +18,10 @@
 
 #include "swapspec.h"
 
+/* *budget with each zero limit replaced by the default's; the defaults
+ * when budget is NULL (diagram.c). */
+ss_budget ss__budget_or_default(const ss_budget *budget);
+
 typedef struct {
     unsigned rows;
     unsigned atoms;

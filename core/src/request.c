@@ -80,12 +80,13 @@ static ss_status ss__validate_run(const ss_analysis_request *req, size_t i,
                      "pair to interact), got %u",
                      SS_ATOMS_MAX, r->atoms);
     uint64_t count = ss_diagram_count(r->atoms, req->levels);
-    if (count > req->budget.max_diagrams)
+    uint64_t max_diagrams = ss__budget_or_default(&req->budget).max_diagrams;
+    if (count > max_diagrams)
         SS__RUN_FAIL(SS_EBUDGET, "atoms",
                      "%u atoms with %u levels have %llu Young diagrams; the "
                      "work budget max_diagrams allows %llu",
                      r->atoms, req->levels, (unsigned long long)count,
-                     (unsigned long long)req->budget.max_diagrams);
+                     (unsigned long long)max_diagrams);
     if (r->energies != NULL) {
         if (r->energy_count < 2)
             SS__RUN_FAIL(SS_EINVAL, "energies",
