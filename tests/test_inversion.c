@@ -74,6 +74,31 @@ Test(inversion, degenerate_energy_n6_d3) {
     /* λ/n of each candidate (header: spectrum_estimate = λ/n), exact */
     cr_assert(c1->spectrum_estimate[0] == 4.0 / 6.0 &&
               c2->spectrum_estimate[1] == 3.0 / 6.0);
+    /* the sentence: one group is "1 energy … belongs", and the default
+     * calibration has no unit, so none (and no blank) follows the energy */
+    cr_assert_eq(rr->degenerate_group_count, 1);
+    cr_expect(strstr(f->message, "1 energy among the candidates belongs") !=
+                  NULL,
+              "%s", f->message);
+    cr_expect(strstr(f->message, "e.g. content 3 at 3)") != NULL, "%s",
+              f->message);
+    /* the estimate is the nearest physical point, the uniform spectrum:
+     * ill-conditioned with a gap of 0 (never a rounding below it) and no
+     * delta-method standard error (null, not 0) */
+    const ss_flag *ill = iv_flag(a, "ill-conditioned", -1);
+    cr_assert(ill != NULL, "no ill-conditioned flag; flags: %s",
+              iv_flag_list(a, buf, sizeof buf));
+    cr_expect(strstr(ill->message, "(gap 0, where no delta-method standard "
+                                   "error exists)") != NULL,
+              "%s", ill->message);
+    for (size_t k = 0; k < ill->number_count; k++) {
+        if (strcmp(ill->numbers[k].name, "min_gap") == 0)
+            cr_expect(ill->numbers[k].value == 0.0, "min_gap %g",
+                      ill->numbers[k].value);
+        if (strcmp(ill->numbers[k].name, "gap_stderr") == 0)
+            cr_expect(isnan(ill->numbers[k].value), "gap_stderr %g",
+                      ill->numbers[k].value);
+    }
     ss_analysis_free(a);
 }
 

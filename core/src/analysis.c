@@ -11,6 +11,7 @@
 
 #include <gsl/gsl_cdf.h>
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -354,8 +355,16 @@ static void ss__estimate_moments(ss_analysis *a, const ss_analysis_request *req,
     if (!a->spectrum_is_max_entropy) {
         double worst_ratio = HUGE_VAL, gap = 0, gap_se = 0;
         int singular = !isfinite(a->stderr_[0]);
+        if (singular) { /* the smallest gap; no delta-method error exists */
+            gap = HUGE_VAL;
+            for (unsigned i = 0; i + 1 < d; i++)
+                gap = fmin(gap, fmax(a->values[i] - a->values[i + 1], 0));
+            gap_se = NAN; /* written as null */
+        }
         for (unsigned i = 0; !singular && i + 1 < d; i++) {
-            double g = a->values[i] - a->values[i + 1];
+            /* values are in descending order up to a rounding: a tie can
+             * come out one unit in the last place the other way */
+            double g = fmax(a->values[i] - a->values[i + 1], 0);
             double v = a->covariance[i * d + i] +
                        a->covariance[(i + 1) * d + i + 1] -
                        2 * a->covariance[i * d + i + 1];
@@ -367,15 +376,22 @@ static void ss__estimate_moments(ss_analysis *a, const ss_analysis_request *req,
             }
         }
         if (singular || worst_ratio < 2.0) {
+            char se_text[64];
+            if (singular)
+                snprintf(se_text, sizeof se_text,
+                         "where no delta-method standard error exists");
+            else
+                snprintf(se_text, sizeof se_text, "standard error %.3g",
+                         gap_se);
             ss_flag *f = ss__flag_add(
                 a, SS_FLAG_ILL_CONDITIONED, -1,
-                "Two eigenvalues are nearly equal (gap %.3g, standard error "
-                "%.3g): the map from power sums to eigenvalues is nearly "
-                "singular there, so delta-method standard errors mislead; "
-                "the intervals follow the curved map instead (profile "
-                "intervals for three levels, bootstrap percentiles "
-                "otherwise; see spectrum.interval).",
-                gap, gap_se);
+                "Two eigenvalues are nearly equal (gap %.3g, %s): the map "
+                "from power sums to eigenvalues is nearly singular there, so "
+                "delta-method standard errors mislead; the intervals follow "
+                "the curved map instead (profile intervals for three "
+                "levels, bootstrap percentiles otherwise; see "
+                "spectrum.interval).",
+                gap, se_text);
             ss__flag_number(f, "min_gap", gap);
             ss__flag_number(f, "gap_stderr", gap_se);
         }
@@ -633,12 +649,14 @@ static void ss__flag_degenerate(ss_analysis *a, const ss_run_result *out,
     const ss_candidate *c = &out->candidates[first];
     ss_flag *f = ss__flag_add(
         a, SS_FLAG_DEGENERATE_ENERGY, (int)r,
-        "Run %zu (%u atoms): %u energies among the candidates belong to more "
+        "Run %zu (%u atoms): %u %s among the candidates %s to more "
         "than one Young diagram (%zu diagrams in all; e.g. content %lld at "
         "%.6g%s%s), and the diagrams of each such energy imply different "
         "spectra: no energy resolution can tell them apart (listed in "
         "runs[%zu].degenerate_groups).",
-        r, out->atoms, out->degenerate_group_count, members,
+        r, out->atoms, out->degenerate_group_count,
+        out->degenerate_group_count == 1 ? "energy" : "energies",
+        out->degenerate_group_count == 1 ? "belongs" : "belong", members,
         (long long)c->content, c->energy, cal->unit[0] ? " " : "", cal->unit,
         r);
     ss__flag_number(f, "atoms", out->atoms);
