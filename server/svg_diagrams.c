@@ -258,12 +258,13 @@ void svg_diagrams_write(page_text *t, const svg_analysis *a, int standalone) {
         height += 20.0;
     char desc[600];
     snprintf(desc, sizeof desc,
-             "The candidate Young diagrams of %zu run(s) (rows left-aligned, "
+             "The candidate Young diagrams of %zu run%s (rows left-aligned, "
              "longest on top), each with its probability at the estimate as "
              "a bar (a full bar is probability 1), its energy and z. %u "
-             "group(s) of diagrams share an energy and are framed together: "
+             "group%s of diagrams share%s an energy and %s framed together: "
              "no energy reading can tell them apart.",
-             runs, groups);
+             runs, runs == 1 ? "" : "s", groups, groups == 1 ? "" : "s",
+             groups == 1 ? "s" : "", groups == 1 ? "is" : "are");
     svg_begin(t, SVG_FIGURE_WIDTH, height, "fig-diagrams",
               "Candidate Young diagrams", a->label, desc, standalone);
     page_text_add(t, "<rect x=\"20\" y=\"9\" width=\"22\" height=\"14\" "
@@ -278,8 +279,9 @@ void svg_diagrams_write(page_text *t, const svg_analysis *a, int standalone) {
         y += dg_run(t, a, r, y);
     if (a->run_count > runs) {
         char note[120];
-        snprintf(note, sizeof note, "%zu more run(s) not drawn (at most %d)",
-                 a->run_count - runs, SVG_DIAGRAMS_RUNS_MAX);
+        snprintf(note, sizeof note, "%zu more run%s not drawn (at most %d)",
+                 a->run_count - runs, a->run_count - runs == 1 ? "" : "s",
+                 SVG_DIAGRAMS_RUNS_MAX);
         svg_text(t, DG_LEFT, y + 12.0, "start", "panel-note", note);
     }
     svg_end(t);

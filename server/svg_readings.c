@@ -330,14 +330,22 @@ void svg_readings_write(page_text *t, const svg_analysis *a,
         shots += a->runs[r].shots;
         per_shot += a->runs[r].energy_count;
     }
+    char kinds[80];
+    if (per_shot == 0)
+        snprintf(kinds, sizeof kinds, "summaries: mean and spread");
+    else if (per_shot == shots)
+        snprintf(kinds, sizeof kinds, "per-shot readings, binned");
+    else
+        snprintf(kinds, sizeof kinds, "%zu of them per-shot readings, binned",
+                 per_shot);
     int used = snprintf(
         desc, sizeof desc,
-        "Energy readings of %zu shots in %zu run(s) (%zu of them as "
-        "per-shot readings, binned) against the model's law at the "
-        "estimated spectrum, one panel per atom number: a stick at each "
-        "energy level with its probability%s. Vertical unit: probability per "
-        "level spacing |J| = %s %s. Detection noise sd %s %s.",
-        shots, a->run_count, per_shot,
+        "Energy readings of %zu shots in %zu run%s (%s) against the model's "
+        "law at the estimated spectrum, one panel per atom number: a stick "
+        "at each energy level with its probability%s. Vertical unit: "
+        "probability per level spacing |J| = %s %s. Detection noise sd %s "
+        "%s.",
+        shots, a->run_count, a->run_count == 1 ? "" : "s", kinds,
         a->has_spectrum ? ", and the same law broadened by the detection noise "
                           "where the noise is at least half a level spacing"
                         : " (no spectrum estimate: candidate energies only)",

@@ -512,6 +512,14 @@ static xnode *xml_ok(const char *text, const char *what) {
     return root;
 }
 
+/* The text of the figure's one <desc> element. */
+static void svg_desc_text(const xnode *root, char *out, size_t cap) {
+    const xnode *found[4];
+    cr_assert_eq(xml_find(root, "desc", NULL, found, 4, 0), 1);
+    out[0] = '\0';
+    xml_text(found[0], out, cap);
+}
+
 /* The data→pixel map of an axis read from its ticks: pos = a + b·value. */
 typedef struct {
     double a, b;
@@ -701,7 +709,11 @@ Test(svg, readings_bars_and_sticks_at_computed_heights) {
     cr_assert_str_eq(root->name, "svg");
     const xnode *found[64];
     cr_assert_eq(xml_find(root, "title", NULL, found, 64, 0), 1);
-    cr_assert_eq(xml_find(root, "desc", NULL, found, 64, 0), 1);
+    char desc[1024];
+    svg_desc_text(root, desc, sizeof desc);
+    cr_expect(strstr(desc, "4 shots in 1 run (per-shot readings, binned)") !=
+                  NULL,
+              "%s", desc);
 
     axis_map ys = axis_read(root, "tick-y", 1),
              xs = axis_read(root, "tick-x", 0);
@@ -770,6 +782,11 @@ Test(svg, readings_broadened_law_and_summary_runs) {
     char *svg = finish(&t);
     xnode *root = xml_ok(svg, "readings (inline)");
     const xnode *found[64];
+    char desc[1024];
+    svg_desc_text(root, desc, sizeof desc);
+    cr_expect(strstr(desc, "400 shots in 1 run (summaries: mean and spread)") !=
+                  NULL,
+              "%s", desc);
     cr_assert_eq(xml_find(root, "polyline", "model-curve", found, 64, 0), 1);
     cr_assert_eq(xml_find(root, "circle", "summary-mean", found, 64, 0), 1);
     axis_map xs = axis_read(root, "tick-x", 0);
@@ -922,6 +939,12 @@ Test(svg, diagrams_boxes_bars_and_degenerate_group) {
     char *svg = finish(&t);
     xnode *root = xml_ok(svg, "diagrams");
     const xnode *found[64];
+    char desc[1024];
+    svg_desc_text(root, desc, sizeof desc);
+    cr_expect(strstr(desc, "diagrams of 1 run (") != NULL &&
+                  strstr(desc, "1 group of diagrams shares an energy and is "
+                               "framed together") != NULL,
+              "%s", desc);
     /* 3 diagrams of 6 atoms: 18 boxes */
     cr_assert_eq(xml_find(root, "rect", "box", found, 64, 0), 18);
     struct {
