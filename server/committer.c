@@ -104,6 +104,10 @@ ss_status committer_start(store *db, size_t max_batch, committer **out,
     return SS_OK;
 }
 
+void committer_checkpoint_stats(committer *c, store_checkpoint_stats *out) {
+    store_checkpoint_counts(c->conn, out);
+}
+
 void committer_drain(committer *c) {
     if (c == NULL)
         return;

@@ -46,6 +46,9 @@ ss_status committer_start(store *db, size_t max_batch, committer **out,
 void committer_submit(committer *c, committer_item *item, committer_done done,
                       void *arg);
 
+/* What the writer connection's background checkpoints did so far. */
+void committer_checkpoint_stats(committer *c, store_checkpoint_stats *out);
+
 /* Refuses new items, commits what is queued (every done callback has run
  * when it returns) and ends the thread.  The committer stays allocated for
  * callers that still submit (they get SS_EUNAVAILABLE).  Accepts NULL. */

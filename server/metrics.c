@@ -132,7 +132,7 @@ static void metrics_printf(metrics_text *t, const char *fmt, ...) {
     }
 }
 
-char *metrics_render(metrics *m, int64_t stored, size_t *len) {
+char *metrics_render(metrics *m, const metrics_store_view *store, size_t *len) {
     metrics_text t = {malloc(4096), 0, 4096, 0};
     if (t.buf == NULL)
         return NULL;
@@ -180,13 +180,33 @@ char *metrics_render(metrics *m, int64_t stored, size_t *len) {
                    "swapspec_store_errors_total %llu\n",
                    (unsigned long long)m->store_errors);
     pthread_mutex_unlock(&m->lock);
-    if (stored >= 0)
+    if (store->stored >= 0)
         metrics_printf(&t,
                        "# HELP swapspec_analyses_stored Analyses held in "
                        "the store.\n"
                        "# TYPE swapspec_analyses_stored gauge\n"
                        "swapspec_analyses_stored %lld\n",
-                       (long long)stored);
+                       (long long)store->stored);
+    if (store->checkpoints_passed >= 0 && store->checkpoints_failed >= 0)
+        metrics_printf(&t,
+                       "# HELP swapspec_store_checkpoints_total Background "
+                       "copies of the write-ahead log into the database "
+                       "file, by outcome.\n"
+                       "# TYPE swapspec_store_checkpoints_total counter\n"
+                       "swapspec_store_checkpoints_total{outcome=\"passed\"} "
+                       "%lld\n"
+                       "swapspec_store_checkpoints_total{outcome=\"failed\"} "
+                       "%lld\n",
+                       (long long)store->checkpoints_passed,
+                       (long long)store->checkpoints_failed);
+    if (store->log_restarts >= 0)
+        metrics_printf(&t,
+                       "# HELP swapspec_store_log_restarts_total Times the "
+                       "write-ahead log was started again from its "
+                       "beginning after a checkpoint.\n"
+                       "# TYPE swapspec_store_log_restarts_total counter\n"
+                       "swapspec_store_log_restarts_total %lld\n",
+                       (long long)store->log_restarts);
     if (t.failed) {
         free(t.buf);
         return NULL;

@@ -21,8 +21,15 @@ void metrics_observe(metrics *m, const char *route, unsigned status,
                      double seconds);
 void metrics_store_error(metrics *m);
 
-/* Writes the exposition text (malloc'd, caller frees) with the gauge
- * swapspec_analyses_stored = stored (negative: omitted). */
-char *metrics_render(metrics *m, int64_t stored, size_t *len);
+/* What the store reports at scrape time; a negative value is omitted. */
+typedef struct {
+    int64_t stored; /* swapspec_analyses_stored */
+    /* swapspec_store_checkpoints_total{outcome="passed"|"failed"} and
+     * swapspec_store_log_restarts_total: the background checkpoints */
+    int64_t checkpoints_passed, checkpoints_failed, log_restarts;
+} metrics_store_view;
+
+/* Writes the exposition text (malloc'd, caller frees). */
+char *metrics_render(metrics *m, const metrics_store_view *store, size_t *len);
 
 #endif /* SWAPSPEC_METRICS_H */

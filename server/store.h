@@ -118,10 +118,14 @@ void store_conn_close(store_conn *c); /* accepts NULL */
  * transactions (SQLite: WAL checkpoints, store_sqlite_checkpoint.c).
  * Durability is unchanged.  Ended by store_conn_close. */
 ss_status store_conn_background_checkpoints(store_conn *c, ss_error *err);
-/* Background passes ended and passes the writer finished so far (0, 0
- * without background checkpoints); for tests. */
-void store_checkpoint_counts(store_conn *c, unsigned long *passes,
-                             unsigned long *restarts);
+/* What the background checkpoints of c did so far (all 0 without them):
+ * passes ended, passes that failed (the disk; the frames stay in the log
+ * and the next commit asks again), and passes the writer finished with a
+ * log restart.  Safe from any thread while c's writer runs. */
+typedef struct {
+    uint64_t passes, failed_passes, restarts;
+} store_checkpoint_stats;
+void store_checkpoint_counts(store_conn *c, store_checkpoint_stats *out);
 
 /* Stores one analysis durably: SS_OK means the record (and, when idem_key is
  * not NULL, the idempotency record {idem_key, fingerprint, rec->id,

@@ -24,6 +24,7 @@
  */
 #include <pthread.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "store_sqlite.h"
 
@@ -41,7 +42,7 @@ struct store_checkpointer {
     int requested; /* the writer's hook saw the WAL past the mark */
     int passed;    /* a PASSIVE pass ended since the writer's last RESTART */
     int stopping;
-    unsigned long passes, restarts; /* counts, for tests */
+    store_checkpoint_stats stats;
     /* the writer's thread only: the WAL's frames after its last commit,
      * and the count at which the next pass is due */
     int frames, mark;
@@ -80,7 +81,8 @@ static void *ckpt_main(void *arg) {
         pthread_mutex_lock(&k->lock);
         k->requested = 0;
         k->passed = rc == SQLITE_OK;
-        k->passes++;
+        k->stats.passes++;
+        k->stats.failed_passes += rc != SQLITE_OK;
     }
     pthread_mutex_unlock(&k->lock);
     return NULL;
@@ -139,7 +141,7 @@ void store__checkpoint_after_commit(store_conn *c) {
     if (rc == SQLITE_OK) {
         k->mark = STORE_CHECKPOINT_FRAMES;
         pthread_mutex_lock(&k->lock);
-        k->restarts++;
+        k->stats.restarts++;
         pthread_mutex_unlock(&k->lock);
     } else { /* not at every commit while that reader stays */
         k->mark = k->frames + STORE_CHECKPOINT_FRAMES / 4;
@@ -163,14 +165,12 @@ void store__checkpointer_stop(store_conn *c) {
     c->ckpt = NULL;
 }
 
-void store_checkpoint_counts(store_conn *c, unsigned long *passes,
-                             unsigned long *restarts) {
+void store_checkpoint_counts(store_conn *c, store_checkpoint_stats *out) {
     store_checkpointer *k = c->ckpt;
-    *passes = *restarts = 0;
+    memset(out, 0, sizeof *out);
     if (k == NULL)
         return;
     pthread_mutex_lock(&k->lock);
-    *passes = k->passes;
-    *restarts = k->restarts;
+    *out = k->stats;
     pthread_mutex_unlock(&k->lock);
 }

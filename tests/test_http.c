@@ -525,6 +525,14 @@ Test(http, metrics_follow_the_text_format, .init = hd_setup,
     cr_expect(strstr(b, "swapspec_http_request_duration_seconds_count{route="
                         "\"/v1/predictions\"} 1") != NULL);
     cr_expect(strstr(b, "swapspec_analyses_stored 0") != NULL);
+    /* nothing written yet: no checkpoint has run */
+    cr_expect(strstr(b, "# TYPE swapspec_store_checkpoints_total counter\n"
+                        "swapspec_store_checkpoints_total{outcome=\"passed\"} "
+                        "0\n"
+                        "swapspec_store_checkpoints_total{outcome=\"failed\"} "
+                        "0\n") != NULL,
+              "%s", b);
+    cr_expect(strstr(b, "swapspec_store_log_restarts_total 0\n") != NULL);
     hh_free(&r);
 }
 
