@@ -9,6 +9,7 @@
  * (ss_levels_alloc): those no energy resolution can tell apart.
  */
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 
 #include "calibration_file.h"
@@ -196,6 +197,57 @@ static ss_status diagrams_check(const cli_value *v, const diagrams_filter *f,
                         DIAGRAMS_SERVED_LISTED, listed);
 }
 
+/* Why a selection listed nothing, in a sentence: a content no diagram of
+ * (n, d) has, a reading outside every diagram's energy, or a reading that
+ * falls between two energy levels (their energies given). */
+static void diagrams_why_none(const ss_diagram_set *set,
+                              const diagrams_filter *f,
+                              const ss_calibration *cal, char *out,
+                              size_t cap) {
+    int64_t cmin = set->content[0], cmax = set->content[0];
+    for (size_t i = 1; i < set->count; i++) {
+        cmin = set->content[i] < cmin ? set->content[i] : cmin;
+        cmax = set->content[i] > cmax ? set->content[i] : cmax;
+    }
+    if (f->mode == SELECT_CONTENT) {
+        snprintf(out, cap,
+                 "No Young diagram of %u atoms on %u levels has content %lld: "
+                 "their contents run from %lld to %lld, and not every "
+                 "integer in between occurs.",
+                 set->atoms, set->levels, (long long)f->content,
+                 (long long)cmin, (long long)cmax);
+        return;
+    }
+    const char *gap = cal->unit[0] ? " " : "";
+    double below = -HUGE_VAL, above = HUGE_VAL, lo = HUGE_VAL, hi = -HUGE_VAL;
+    for (size_t i = 0; i < set->count; i++) {
+        double e = ss_calibration_energy(cal, set->atoms, set->content[i]);
+        lo = fmin(lo, e);
+        hi = fmax(hi, e);
+        if (e < f->energy)
+            below = fmax(below, e);
+        else
+            above = fmin(above, e);
+    }
+    if (f->energy < lo || f->energy > hi)
+        snprintf(out, cap,
+                 "No diagram's energy lies within %d sd (%.4g%s%s) of the "
+                 "reading %.6g%s%s: %u atoms on %u levels have energies from "
+                 "%.6g to %.6g%s%s only, so the reading is outside what the "
+                 "model allows; check the calibration (offset, pair_shift, "
+                 "exchange) and the atom number.",
+                 DIAGRAMS_WINDOW_SD, f->halfwidth, gap, cal->unit, f->energy,
+                 gap, cal->unit, set->atoms, set->levels, lo, hi, gap,
+                 cal->unit);
+    else
+        snprintf(out, cap,
+                 "No diagram's energy lies within %d sd (%.4g%s%s) of the "
+                 "reading %.6g%s%s: it falls between the energy levels "
+                 "%.6g and %.6g%s%s; a larger energy_sd widens the window.",
+                 DIAGRAMS_WINDOW_SD, f->halfwidth, gap, cal->unit, f->energy,
+                 gap, cal->unit, below, above, gap, cal->unit);
+}
+
 static void diagrams_render(json_t *doc, const ss_diagram_set *set,
                             const ss_levels *groups, const diagrams_filter *f,
                             const ss_calibration *cal,
@@ -224,6 +276,11 @@ static void diagrams_render(json_t *doc, const ss_diagram_set *set,
                           err);
     }
     cli_json_put_int(doc, "count", (int64_t)listed, err);
+    if (listed == 0 && f->mode != SELECT_ALL) {
+        char note[400];
+        diagrams_why_none(set, f, cal, note, sizeof note);
+        cli_json_put_string(doc, "note", note, err);
+    }
     cli_json_put(doc, "diagrams", list, err);
     if (err->code == SS_OK)
         cli_json_put(doc, "degenerate_groups",

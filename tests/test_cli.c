@@ -615,6 +615,40 @@ Test(cli, diagrams_energy_window) {
     json_decref(doc);
 }
 
+/* An empty selection says why.  Default calibration (energy = content, no
+ * unit); the contents of 6 atoms on 3 levels, by hand from c = Σ_i
+ * [λ_i(λ_i−1)/2 − (i−1)λ_i]: (6) 15, (5,1) 9, (4,2) 5, (4,1,1) 3, (3,3) 3,
+ * (3,2,1) 0, (2,2,2) −3. */
+static void tc_expect_note(const char *what, json_t *doc, const char *want) {
+    json_t *note = json_object_get(doc, "note");
+    cr_expect(json_is_string(note) &&
+                  strstr(json_string_value(note), want) != NULL,
+              "%s: note %s, want \"%s\"", what,
+              json_is_string(note) ? json_string_value(note) : "(none)", want);
+    json_decref(doc);
+}
+
+Test(cli, diagrams_say_why_nothing_is_listed) {
+    tc_expect_note("content 4",
+                   tc_ok(TC_ARGS("diagrams", "--levels", "3", "--atoms", "6",
+                                 "--content", "4")),
+                   "has content 4: their contents run from -3 to 15");
+    tc_expect_note("reading 100",
+                   tc_ok(TC_ARGS("diagrams", "--levels", "3", "--atoms", "6",
+                                 "--energy", "100", "--energy-sd", "0.1")),
+                   "have energies from -3 to 15 only, so the reading is "
+                   "outside what the model allows");
+    tc_expect_note("reading 7",
+                   tc_ok(TC_ARGS("diagrams", "--levels", "3", "--atoms", "6",
+                                 "--energy", "7", "--energy-sd", "0.1")),
+                   "falls between the energy levels 5 and 9;");
+    json_t *doc = tc_ok(TC_ARGS("diagrams", "--levels", "3", "--atoms", "6",
+                                "--energy", "9", "--energy-sd", "0.1"));
+    cr_expect(tc_int(doc, "count") == 1);
+    cr_expect(json_object_get(doc, "note") == NULL, "a note beside a listing");
+    json_decref(doc);
+}
+
 /* ------------------------------------------------------------------------ */
 /* simulate                                                                 */
 
