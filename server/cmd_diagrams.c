@@ -204,12 +204,9 @@ static void diagrams_why_none(const ss_diagram_set *set,
                               const diagrams_filter *f,
                               const ss_calibration *cal, char *out,
                               size_t cap) {
-    int64_t cmin = set->content[0], cmax = set->content[0];
-    for (size_t i = 1; i < set->count; i++) {
-        cmin = set->content[i] < cmin ? set->content[i] : cmin;
-        cmax = set->content[i] > cmax ? set->content[i] : cmax;
-    }
-    if (f->mode == SELECT_CONTENT) {
+    if (f->mode == SELECT_CONTENT) { /* (n) has the largest content */
+        int64_t n = set->atoms, cmax = n * (n - 1) / 2;
+        int64_t cmin = ss_diagram_content_min(set->atoms, set->levels);
         snprintf(out, cap,
                  "No Young diagram of %u atoms on %u levels has content %lld: "
                  "their contents run from %lld to %lld, and not every "

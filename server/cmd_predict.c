@@ -163,11 +163,8 @@ static void predict_render(json_t *doc, const predict_view *pv, size_t top,
  * would do, else atoms. */
 static ss_status predict_check(const cli_value *v, unsigned atoms,
                                unsigned levels, ss_error *err) {
-    unsigned long long n = atoms, count = ss_diagram_count(atoms, levels);
-    unsigned long long span =
-        (unsigned long long)((int64_t)(n * (n - 1) / 2) -
-                             ss_diagram_content_min(atoms, levels) + 1);
-    unsigned long long lv = span < count ? span : count;
+    unsigned long long count = ss_diagram_count(atoms, levels);
+    unsigned long long lv = ss_diagram_content_levels_max(atoms, levels, count);
     unsigned long long listed = PREDICT_PER_LEVEL * lv;
     unsigned long long top =
         v[OPT_TOP].present ? v[OPT_TOP].u : PREDICT_DEFAULT_TOP;

@@ -78,8 +78,8 @@ static uint64_t jt_pow5(int k) {
 
 static size_t jt_place(int neg, uint64_t D, int E, char out[32]);
 
-/* Outside the fast range (zero, subnormals, |x| below about 1e-11 or from
- * 1e17 on): the shortest "%.*e" that strtod reads back as x, placed by
+/* Outside the fast range (subnormals, |x| below about 1e-11 or from 1e17
+ * on): the shortest "%.*e" that strtod reads back as x, placed by
  * jt_place like the fast path's digits. */
 static size_t jt_fallback(double x, char out[32]) {
     char text[40];

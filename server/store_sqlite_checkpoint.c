@@ -35,7 +35,7 @@
 #define STORE_CHECKPOINT_WAIT_MS 20
 
 struct store_checkpointer {
-    store_conn *conn; /* the checkpointing thread's own connection */
+    sqlite3 *db; /* the checkpointing thread's own connection */
     pthread_t thread;
     pthread_mutex_t lock;
     pthread_cond_t wake;
@@ -77,7 +77,7 @@ static void *ckpt_main(void *arg) {
         /* a failure (the disk, a reader) leaves the frames in the WAL,
          * where they stay readable; the next commit's hook asks again */
         int rc = sqlite3_wal_checkpoint_v2(
-            k->conn->db, NULL, SQLITE_CHECKPOINT_PASSIVE, NULL, NULL);
+            k->db, NULL, SQLITE_CHECKPOINT_PASSIVE, NULL, NULL);
         pthread_mutex_lock(&k->lock);
         k->requested = 0;
         k->passed = rc == SQLITE_OK;
@@ -94,7 +94,9 @@ ss_status store_conn_background_checkpoints(store_conn *c, ss_error *err) {
     store_checkpointer *k = calloc(1, sizeof *k);
     if (k == NULL)
         return ss_error_set(err, SS_ENOMEM, "", NULL);
-    ss_status st = store_conn_open((store *)c->owner, &k->conn, err);
+    /* a bare connection: it runs checkpoints only, no statements */
+    ss_status st = store_sqlite_connect(
+        c->owner->path, c->owner->busy_timeout_ms, 0, &k->db, err);
     if (st != SS_OK) {
         free(k);
         return st;
@@ -103,7 +105,7 @@ ss_status store_conn_background_checkpoints(store_conn *c, ss_error *err) {
     pthread_mutex_init(&k->lock, NULL);
     pthread_cond_init(&k->wake, NULL);
     if (pthread_create(&k->thread, NULL, ckpt_main, k) != 0) {
-        store_conn_close(k->conn);
+        sqlite3_close(k->db);
         pthread_mutex_destroy(&k->lock);
         pthread_cond_destroy(&k->wake);
         free(k);
@@ -158,7 +160,7 @@ void store__checkpointer_stop(store_conn *c) {
     pthread_cond_signal(&k->wake);
     pthread_mutex_unlock(&k->lock);
     pthread_join(k->thread, NULL);
-    store_conn_close(k->conn);
+    sqlite3_close(k->db);
     pthread_mutex_destroy(&k->lock);
     pthread_cond_destroy(&k->wake);
     free(k);

@@ -14,8 +14,9 @@
 #     (a tree that does not build counts all its programs as failed).
 # Exit status 0 only when every test program passed, the format is clean
 # and no fuzz target failed on a saved or seed input (a fresh find is
-# reported as NEW FINDING; FUZZ_FRESH=fail makes it fail the run too).  JOBS (default 2) sets the build parallelism;
-# FUZZ_SECONDS=0 skips the fuzz stage.
+# reported as NEW FINDING; FUZZ_FRESH=fail makes it fail the run too).
+# JOBS (default 2) sets the build parallelism; FUZZ_SECONDS=0 skips the
+# fuzz stage.
 set -euo pipefail
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
 

@@ -314,35 +314,37 @@ Test(http, analyses_are_stored_listed_and_idempotent, .init = hd_setup,
     "\"shots\":1000,\"mean_energy\":415989600,"                                \
     "\"energy_variance\":614937586176}],\"method\":\"moments\"}"
 
+/* A JSON POST on a thread of its own, for a request that keeps the daemon
+ * busy while the test does something else; the answer lands in r. */
 typedef struct {
     int port;
-    int status;
-} hh_slow;
-
-static void *slow_post(void *arg) {
-    hh_slow *s = arg;
+    const char *path, *headers, *body;
     hh_response r;
-    /* a large bootstrap keeps the analysis busy for a while */
-    hh_request(s->port, "POST", "/v1/analyses", NULL, "application/json",
-               "Idempotency-Key: slow-1", SLOW_BODY, &r);
-    s->status = r.status;
-    hh_free(&r);
+} hh_background;
+
+static void *post_in_background(void *arg) {
+    hh_background *b = arg;
+    hh_request(b->port, "POST", b->path, NULL, "application/json", b->headers,
+               b->body, &b->r);
     return NULL;
 }
 
 Test(http, same_key_while_running_is_409, .init = hd_setup, .fini = hd_teardown,
      .timeout = 120) {
     cr_assert(hh_start(&hd, NULL) == 0);
-    hh_slow s = {hd.port, 0};
+    /* a large bootstrap keeps the analysis busy for a while */
+    hh_background s = {
+        hd.port, "/v1/analyses", "Idempotency-Key: slow-1", SLOW_BODY, {0}};
     pthread_t t;
-    pthread_create(&t, NULL, slow_post, &s);
+    pthread_create(&t, NULL, post_in_background, &s);
     struct timespec nap = {0, 200 * 1000 * 1000};
     nanosleep(&nap, NULL);
     hh_response r;
     hh_request(hd.port, "POST", "/v1/analyses", NULL, "application/json",
                "Idempotency-Key: slow-1", SLOW_BODY, &r);
     pthread_join(t, NULL);
-    cr_expect(s.status == 201, "first request: %d", s.status);
+    cr_expect(s.r.status == 201, "first request: %d", s.r.status);
+    hh_free(&s.r);
     expect_problem(&r, 409, "conflict", NULL);
     hh_free(&r);
 }
@@ -863,21 +865,10 @@ Test(http, compute_limits_are_refused_up_front, .init = hd_setup,
  * is past the deadline.  (Frozen before the drawing started, the request
  * would still run past 1 s by itself on the reference machine, and far
  * past it in the sanitizer build.) */
-typedef struct {
-    int port;
-    hh_response r;
-} hh_pending;
-
-static void *post_slow_simulation(void *arg) {
-    hh_pending *s = arg;
-    hh_request(s->port, "POST", "/v1/simulations", NULL, "application/json",
-               NULL,
-               "{\"levels\":16,\"atoms\":100000,\"spectrum\":[0.1,0.1,0.1,0.1,"
-               "0.075,0.075,0.075,0.075,0.05,0.05,0.05,0.05,0.025,0.025,0.025,"
-               "0.025],\"shots\":208}",
-               &s->r);
-    return NULL;
-}
+#define SLOW_SIMULATION                                                        \
+    "{\"levels\":16,\"atoms\":100000,\"spectrum\":[0.1,0.1,0.1,0.1,"           \
+    "0.075,0.075,0.075,0.075,0.05,0.05,0.05,0.05,0.025,0.025,0.025,"           \
+    "0.025],\"shots\":208}"
 
 Test(http, deadline_turns_a_slow_request_into_503, .init = hd_setup,
      .fini = hd_teardown, .timeout = 120) {
@@ -886,9 +877,9 @@ Test(http, deadline_turns_a_slow_request_into_503, .init = hd_setup,
     hh_write(conf, "max_seconds = 1\n");
     const char *extra[] = {"--config", conf, NULL};
     cr_assert(hh_start(&hd, extra) == 0);
-    hh_pending s = {hd.port, {0}};
+    hh_background s = {hd.port, "/v1/simulations", NULL, SLOW_SIMULATION, {0}};
     pthread_t t;
-    pthread_create(&t, NULL, post_slow_simulation, &s);
+    pthread_create(&t, NULL, post_in_background, &s);
     nanosleep(&(struct timespec){0, 100 * 1000 * 1000}, NULL);
     kill(hd.pid, SIGSTOP);
     nanosleep(&(struct timespec){1, 500 * 1000 * 1000}, NULL);

@@ -167,6 +167,12 @@ int64_t ss_diagram_content(const uint32_t *rows, unsigned levels);
  * q), because moving a box down to a shorter row lowers the content.  The
  * contents of such diagrams lie in [this, C(atoms, 2)]. */
 int64_t ss_diagram_content_min(unsigned atoms, unsigned levels);
+/* At most how many distinct content sums (so energy levels) the diagrams
+ * of atoms boxes with at most levels rows have: the width of that range,
+ * C(atoms, 2) − ss_diagram_content_min + 1, and no more than `diagrams`,
+ * their number (ss_diagram_count, passed in by callers that have it). */
+uint64_t ss_diagram_content_levels_max(unsigned atoms, unsigned levels,
+                                       uint64_t diagrams);
 
 /* log f^λ, the log of the number of standard Young tableaux (hook length
  * formula in its row form).  rows must be a valid diagram. */

@@ -27,14 +27,6 @@ int ss_budget_expired(double deadline) {
     return deadline > 0 && ss__now() > deadline;
 }
 
-uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
-                                  uint64_t diagrams) {
-    int64_t n = atoms;
-    uint64_t span =
-        (uint64_t)(n * (n - 1) / 2 - ss_diagram_content_min(atoms, levels) + 1);
-    return span < diagrams ? span : diagrams;
-}
-
 uint64_t ss__bootstrap_fixed_units(unsigned levels) {
     return levels <= 3
                ? SS__BOOT_UNITS_CLOSED
@@ -86,8 +78,8 @@ ss_status ss__analysis_cost(const ss_analysis_request *req, ss__cost *out,
             biggest = r;
         }
         c.replicate_units = ss__sat_add(
-            c.replicate_units,
-            SS__BOOT_UNITS_PER_RUN + ss__content_levels_bound(n, d, count));
+            c.replicate_units, SS__BOOT_UNITS_PER_RUN +
+                                   ss_diagram_content_levels_max(n, d, count));
     }
     ss__rank_table_release(&t);
     c.bootstrap = ss__runs_bootstrap(req) ? req->bootstrap : 0;

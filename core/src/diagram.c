@@ -240,6 +240,14 @@ void ss_diagram_set_free(ss_diagram_set *set) {
     free(set);
 }
 
+uint64_t ss_diagram_content_levels_max(unsigned atoms, unsigned levels,
+                                       uint64_t diagrams) {
+    int64_t n = atoms;
+    uint64_t span =
+        (uint64_t)(n * (n - 1) / 2 - ss_diagram_content_min(atoms, levels) + 1);
+    return span < diagrams ? span : diagrams;
+}
+
 int64_t ss_diagram_content_min(unsigned atoms, unsigned levels) {
     unsigned rows = atoms < levels ? atoms : levels;
     if (rows == 0)

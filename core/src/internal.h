@@ -66,7 +66,8 @@ static inline uint64_t ss__rank_of(const ss__rank_table *t, const long *a,
  * multinomial draw of one run (16–19 ns measured, Release, at (n, d) =
  * (10 000, 2) and (3461, 3)).  A replicate costs
  *     fixed(d) + Σ_runs (SS__BOOT_UNITS_PER_RUN + L(n_r, d)),
- * L = number of distinct contents ≤ min(diagrams, C(n,2) − c_min + 1), the
+ * L = number of distinct contents ≤ min(diagrams, C(n,2) − c_min + 1)
+ * (ss_diagram_content_levels_max), the
  * per-run part being the refit's Gauss–Newton steps and noise draws (0.2–5
  * µs measured with 1000 runs).  fixed(d) is the spectrum of the replicate's
  * moments: closed forms for d ≤ 3 (1.3–18 µs, but 212 µs at the uniform
@@ -92,9 +93,6 @@ typedef struct {
     uint64_t replicate_units; /* one bootstrap replicate */
     unsigned bootstrap;       /* replicates the request will draw */
 } ss__cost;
-/* The bound L above (diagrams = the number of diagrams, or UINT64_MAX). */
-uint64_t ss__content_levels_bound(unsigned atoms, unsigned levels,
-                                  uint64_t diagrams);
 uint64_t ss__bootstrap_fixed_units(unsigned levels);
 /* Estimates the cost of a validated request into *out; SS_EBUDGET naming
  * "runs" (or "runs[i].atoms" when one run alone is too big) or

@@ -171,8 +171,7 @@ static ss_status ss__lik_init(ss__lik *L, unsigned d, const ss_calibration *cal,
                               const double *p0, ss_error *err) {
     memset(L, 0, sizeof *L);
     L->d = d;
-    L->work_max =
-        budget && budget->max_work ? budget->max_work : SS_BUDGET_WORK_DEFAULT;
+    L->work_max = ss__budget_or_default(budget).max_work;
     L->deadline = ss_budget_deadline(budget);
     L->cal = cal;
     L->sigma = cal->noise_sd;

@@ -118,12 +118,15 @@ for t in "${TARGETS[@]}"; do
     ft=$(sed -n 's/.* ft: \([0-9]*\).*/\1/p' <<<"$last")
     corp=$(sed -n 's/.* corp: \([0-9]*\).*/\1/p' <<<"$last")
     verdict=ok
-    fresh=0 # the failure came from a new input, after the corpus replay
-    if [[ $rc != 0 ]] && grep -q '^#[0-9]* *INITED' "$log"; then
-        fresh=1
+    # report only: the failure came from an input new in this run (after the
+    # corpus replay) and FUZZ_FRESH=report
+    report_only=0
+    if [[ $rc != 0 && $FRESH == report ]] &&
+        grep -q '^#[0-9]* *INITED' "$log"; then
+        report_only=1
     fi
     if [[ $rc != 0 ]]; then
-        if [[ $fresh == 1 && $FRESH == report ]]; then
+        if [[ $report_only == 1 ]]; then
             reported=$((reported + 1))
         else
             failed=$((failed + 1))
@@ -141,7 +144,7 @@ for t in "${TARGETS[@]}"; do
         else
             verdict="failed (exit $rc)"
         fi
-        if [[ $fresh == 1 && $FRESH == report ]]; then
+        if [[ $report_only == 1 ]]; then
             verdict="$verdict: NEW FINDING (reported, not failing the run)"
         fi
     fi
