@@ -506,6 +506,13 @@ async function phaseOpen(bin, version) {
     const ok = b.energy_sd === sd && b.diagrams.every((x) => Math.abs(x.energy - 30) <= 3 * sd + 1e-9 && relClose(x.z, (x.energy - 30) / sd, 1e-9));
     t.check('candidates: every listed diagram is within 3 noise_sd of the reading, z = (E − 30)/σ', ok && b.count === b.diagrams.length, JSON.stringify(b));
   }
+  // an empty selection carries a note (contents of 6 atoms on 3 levels run
+  // from -3 to 15, by hand from c = Σ_i [λ_i(λ_i−1)/2 − (i−1)λ_i])
+  r = await go({ method: 'POST', path: '/v1/candidates', headers: json, body: { levels: 3, atoms: 6, energy: 100, energy_sd: 0.1 } });
+  b = expectResponse('POST /v1/candidates (reading outside every energy)', r, { route: '/v1/candidates', method: 'POST', status: 200 });
+  if (b) {
+    t.check('candidates: an empty selection says why, with the range of energies', b.count === 0 && typeof b.note === 'string' && b.note.includes('from -3 to 15 only'), JSON.stringify(b));
+  }
 
   // --- simulations --------------------------------------------------------
   const cal0 = { offset: 1.5, pair_shift: 0.25, exchange: -2, noise_sd: 0, unit: 'Hz' };
