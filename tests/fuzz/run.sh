@@ -122,7 +122,7 @@ for t in "${TARGETS[@]}"; do
     # corpus replay) and FUZZ_FRESH=report
     report_only=0
     if [[ $rc != 0 && $FRESH == report ]] &&
-        grep -q '^#[0-9]* *INITED' "$log"; then
+        grep -q '^#[0-9]*[[:space:]]*INITED' "$log"; then
         report_only=1
     fi
     if [[ $rc != 0 ]]; then
